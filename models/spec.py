@@ -1,0 +1,189 @@
+"""The model *description*: which terms, which priors. No PyMC here.
+
+``models.build`` turns a :class:`ModelSpec` plus data into a PyMC model; the store keeps the spec
+in each version's manifest (``to_dict``/``from_dict``) so a forecast knows what produced it.
+
+The log arrival rate per hour in a bin starting at local time t is::
+
+    log λ(t) = α + β_dow[d(t)] + β_slot[s(t)] + β_dow×slot[d(t), s(t)]
+             + γ · years(t) + η · holiday(t) + z[day(t)]
+
+with day-of-week, slot-of-day and interaction effects summing to zero (each block with a learned
+scale), a linear trend, a holiday effect, and a latent daily AR(1) deviation
+z[k] = ρ z[k-1] + σ_z ε[k] (a discretised log-Gaussian Cox process).
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from dataclasses import asdict, dataclass, field, fields, replace
+from typing import Any
+
+from models.exceptions import InputError
+
+__all__ = ["HolidayCalendar", "ModelSpec", "Priors"]
+
+
+@dataclass(frozen=True)
+class Priors:
+    """Prior scales. Log-rate effects are on the natural-log scale, rates are per hour.
+
+    Attributes
+    ----------
+    baseline_sigma
+        Sd of the Normal prior on the log baseline rate, centred on the log of the observed mean
+        rate (weakly data-centred, so the prior is on the right order of magnitude for any series).
+    baseline_gamma
+        If given as ``(shape, rate)``, the baseline rate per hour has a Gamma prior instead (useful
+        with prior knowledge, and gives the conjugate Gamma-Poisson model when no other term is on).
+    dow_scale, slot_scale, interaction_scale
+        Half-normal prior scale of each block's learned sd.
+    trend_sigma
+        Sd of the trend slope, in log-rate per year.
+    holiday_sigma
+        Sd of the holiday effect on the log rate.
+    latent_scale
+        Half-normal prior scale of the daily latent deviation's innovation sd.
+    """
+
+    baseline_sigma: float = 2.0
+    baseline_gamma: tuple[float, float] | None = None
+    dow_scale: float = 0.5
+    slot_scale: float = 1.0
+    interaction_scale: float = 0.25
+    trend_sigma: float = 0.5
+    holiday_sigma: float = 1.0
+    latent_scale: float = 0.2
+
+    def __post_init__(self) -> None:
+        for f in fields(self):
+            value = getattr(self, f.name)
+            if f.name == "baseline_gamma":
+                if value is not None and (len(value) != 2 or min(value) <= 0):
+                    raise InputError(f"baseline_gamma {value!r} must be (shape > 0, rate > 0)")
+            elif not value > 0:
+                raise InputError(f"prior scale {f.name}={value!r} must be > 0")
+
+
+@dataclass(frozen=True)
+class HolidayCalendar:
+    """Public holidays of a country (and subdivision) from the ``holidays`` package, plus extra dates.
+
+    Examples
+    --------
+    >>> import datetime as dt
+    >>> cal = HolidayCalendar(country="IE", extra=(dt.date(2026, 7, 4),))
+    >>> cal.is_holiday([dt.date(2026, 12, 25), dt.date(2026, 7, 4), dt.date(2026, 7, 6)])
+    [True, True, False]
+    """
+
+    country: str | None = None
+    subdivision: str | None = None
+    extra: tuple[dt.date, ...] = ()
+
+    def __post_init__(self) -> None:
+        if self.country is not None:
+            import holidays
+
+            try:
+                holidays.country_holidays(self.country, subdiv=self.subdivision, years=2000)
+            except (NotImplementedError, KeyError) as exc:
+                raise InputError(
+                    f"holiday calendar country={self.country!r} subdivision={self.subdivision!r} "
+                    "is not known to the 'holidays' package (use ISO 3166 codes, e.g. 'US', 'NZ')"
+                ) from exc
+
+    def dates(self, years: range) -> set[dt.date]:
+        """All holiday dates in ``years``."""
+        found = {d for d in self.extra if d.year in years}
+        if self.country is not None and len(years):
+            import holidays
+
+            found |= set(
+                holidays.country_holidays(self.country, subdiv=self.subdivision, years=list(years))
+            )
+        return found
+
+    def is_holiday(self, days: list[dt.date]) -> list[bool]:
+        """Whether each day is a holiday."""
+        if not days:
+            return []
+        known = self.dates(range(min(days).year, max(days).year + 1))
+        return [d in known for d in days]
+
+
+@dataclass(frozen=True)
+class ModelSpec:
+    """Which terms the model has, and their priors.
+
+    Examples
+    --------
+    >>> spec = ModelSpec(bin_minutes=30, trend=False)
+    >>> ModelSpec.from_dict(spec.to_dict()) == spec
+    True
+    """
+
+    bin_minutes: int = 60
+    day_of_week: bool = True
+    time_of_day: bool = True
+    interaction: bool = True
+    trend: bool = True
+    holidays: HolidayCalendar | None = None
+    latent_daily: bool = True
+    centred_interaction: bool = False
+    centred_latent: bool = False
+    priors: Priors = field(default_factory=Priors)
+
+    def __post_init__(self) -> None:
+        if self.bin_minutes not in (15, 30, 60):
+            raise InputError(f"bin_minutes {self.bin_minutes!r} is not one of 15, 30, 60")
+        if self.interaction and not (self.day_of_week and self.time_of_day):
+            raise InputError("the day-of-week x time-of-day interaction needs both main effects on")
+
+    @property
+    def slots_per_day(self) -> int:
+        """Bins in a 24-hour day."""
+        return 24 * 60 // self.bin_minutes
+
+    @classmethod
+    def intercept_only(cls, *, bin_minutes: int = 60, priors: Priors | None = None) -> ModelSpec:
+        """A constant rate: the conjugate Gamma-Poisson model when ``priors.baseline_gamma`` is set."""
+        return cls(
+            bin_minutes=bin_minutes,
+            day_of_week=False,
+            time_of_day=False,
+            interaction=False,
+            trend=False,
+            latent_daily=False,
+            priors=priors or Priors(),
+        )
+
+    def with_(self, **changes: Any) -> ModelSpec:
+        """A copy with some fields changed."""
+        return replace(self, **changes)
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready form (dates as ISO strings)."""
+        out = asdict(self)
+        if self.holidays is not None:
+            out["holidays"]["extra"] = [d.isoformat() for d in self.holidays.extra]
+        gamma = self.priors.baseline_gamma
+        out["priors"]["baseline_gamma"] = list(gamma) if gamma is not None else None
+        return out
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> ModelSpec:
+        """Inverse of :meth:`to_dict`."""
+        data = dict(data)
+        cal = data.get("holidays")
+        if cal is not None:
+            data["holidays"] = HolidayCalendar(
+                country=cal.get("country"),
+                subdivision=cal.get("subdivision"),
+                extra=tuple(dt.date.fromisoformat(d) for d in cal.get("extra", ())),
+            )
+        priors = dict(data.get("priors") or {})
+        if priors.get("baseline_gamma") is not None:
+            priors["baseline_gamma"] = tuple(priors["baseline_gamma"])
+        data["priors"] = Priors(**priors)
+        return cls(**data)
