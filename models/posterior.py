@@ -1,0 +1,179 @@
+"""The compact posterior that prediction needs, extracted from a fit.
+
+Prediction never touches PyMC or the full trace: it needs, per draw, the log rate of each weekly
+cell, the trend slope, the holiday effect, the AR(1) parameters and the latent deviation of each
+history day. Stored as float32 these are a few MB for a series.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import io
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from models.binning import OpeningHours
+from models.design import Calendar
+from models.exceptions import CorruptArtefact
+from models.spec import ModelSpec
+
+__all__ = ["CompactPosterior", "compact_from_fit"]
+
+_ARRAYS = ("week_log_rate", "trend", "holiday_effect", "latent", "latent_rho", "latent_sd")
+
+
+@dataclass(frozen=True)
+class CompactPosterior:
+    """Posterior draws in the form prediction uses.
+
+    Attributes
+    ----------
+    week_log_rate
+        ``(draw, dow, slot)`` log arrivals per hour at the trend origin, no holiday, no deviation.
+    trend, holiday_effect, latent_rho, latent_sd
+        ``(draw,)``; zeros where the term is off.
+    latent
+        ``(draw, day)`` latent daily deviation over the history days.
+    calendar, spec, opening
+        How instants map to model coordinates, the model description, and opening hours
+        (closed bins forecast zero arrivals).
+    seed
+        Seeds the forward simulation of future latent deviations, so a query always gets the same
+        answer from the same version.
+    """
+
+    week_log_rate: np.ndarray
+    trend: np.ndarray
+    holiday_effect: np.ndarray
+    latent: np.ndarray
+    latent_rho: np.ndarray
+    latent_sd: np.ndarray
+    calendar: Calendar
+    spec: ModelSpec
+    opening: OpeningHours | None
+    seed: int
+
+    @property
+    def n_draws(self) -> int:
+        """Number of posterior draws."""
+        return int(self.week_log_rate.shape[0])
+
+    @property
+    def n_days(self) -> int:
+        """Number of history days."""
+        return int(self.latent.shape[1])
+
+    @property
+    def history_end(self) -> dt.date:
+        """Local date after the last history day."""
+        return self.calendar.first_day + dt.timedelta(days=self.n_days)
+
+    def meta(self) -> dict[str, Any]:
+        """JSON-ready description (for the manifest)."""
+        return {
+            "calendar": self.calendar.to_dict(),
+            "spec": self.spec.to_dict(),
+            "opening_hours": self.opening.text if self.opening else None,
+            "seed": self.seed,
+            "draws": self.n_draws,
+            "history_days": self.n_days,
+        }
+
+    def to_bytes(self) -> bytes:
+        """Serialise the arrays (``.npz``)."""
+        buffer = io.BytesIO()
+        np.savez(buffer, **{name: getattr(self, name) for name in _ARRAYS})
+        return buffer.getvalue()
+
+    @classmethod
+    def from_bytes(cls, payload: bytes, meta: dict[str, Any]) -> CompactPosterior:
+        """Inverse of :meth:`to_bytes` plus :meth:`meta`."""
+        try:
+            with np.load(io.BytesIO(payload), allow_pickle=False) as npz:
+                arrays = {name: npz[name] for name in _ARRAYS}
+        except (OSError, ValueError, KeyError) as exc:
+            raise CorruptArtefact(f"compact draws cannot be read: {exc}") from exc
+        spec = ModelSpec.from_dict(meta["spec"])
+        opening = meta.get("opening_hours")
+        posterior = cls(
+            **arrays,
+            calendar=Calendar.from_dict(meta["calendar"], holidays=spec.holidays),
+            spec=spec,
+            opening=OpeningHours.parse(opening) if opening else None,
+            seed=int(meta["seed"]),
+        )
+        posterior.check_shapes()
+        return posterior
+
+    def check_shapes(self) -> None:
+        """Raise :class:`CorruptArtefact` if the arrays disagree with each other or the spec."""
+        d = self.n_draws
+        expected = {
+            "week_log_rate": (d, 7, self.spec.slots_per_day),
+            "trend": (d,),
+            "holiday_effect": (d,),
+            "latent_rho": (d,),
+            "latent_sd": (d,),
+        }
+        for name, shape in expected.items():
+            if getattr(self, name).shape != shape:
+                raise CorruptArtefact(
+                    f"array {name} has shape {getattr(self, name).shape}, expected {shape}"
+                )
+        if self.latent.ndim != 2 or self.latent.shape[0] != d:
+            raise CorruptArtefact(f"array latent has shape {self.latent.shape}, expected ({d}, days)")
+        for name in _ARRAYS:
+            if not np.isfinite(getattr(self, name)).all():
+                raise CorruptArtefact(f"array {name} holds non-finite values")
+
+
+def compact_from_fit(
+    posterior_group: Any,
+    *,
+    calendar: Calendar,
+    spec: ModelSpec,
+    n_days: int,
+    opening: OpeningHours | None,
+    seed: int,
+    max_draws: int | None = 2000,
+) -> CompactPosterior:
+    """Extract a :class:`CompactPosterior` from an ArviZ ``posterior`` group.
+
+    Draws from all chains are pooled; if there are more than ``max_draws`` they are thinned evenly.
+    """
+    stacked = posterior_group.stack(sample=("chain", "draw"))
+    total = stacked.sizes["sample"]
+    keep = np.arange(total)
+    if max_draws is not None and total > max_draws:
+        keep = np.unique(np.linspace(0, total - 1, max_draws).round().astype(int))
+
+    def take(name: str, dims: tuple[str, ...]) -> np.ndarray | None:
+        if name not in stacked:
+            return None
+        values = stacked[name].transpose("sample", *dims).to_numpy()
+        return np.asarray(values[keep], dtype=np.float32)
+
+    d = len(keep)
+    zeros = np.zeros(d, dtype=np.float32)
+    week = take("week_log_rate", ("dow", "slot"))
+    if week is None:
+        raise CorruptArtefact("the fit has no week_log_rate; was it built by models.build?")
+    latent = take("latent", ("day",))
+    return CompactPosterior(
+        week_log_rate=week,
+        trend=_or(take("trend", ()), zeros),
+        holiday_effect=_or(take("holiday_effect", ()), zeros),
+        latent=latent if latent is not None else np.zeros((d, n_days), dtype=np.float32),
+        latent_rho=_or(take("latent_rho", ()), zeros),
+        latent_sd=_or(take("latent_sd", ()), zeros),
+        calendar=calendar,
+        spec=spec,
+        opening=opening,
+        seed=seed,
+    )
+
+
+def _or(value: np.ndarray | None, default: np.ndarray) -> np.ndarray:
+    return default if value is None else value

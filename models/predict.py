@@ -1,0 +1,339 @@
+"""Predictive count distributions for arbitrary windows, from a compact posterior.
+
+For each posterior draw d the expected count in a window [a, b) is Λ_d = ∫_a^b λ_d(t) dt, with
+λ_d piecewise constant on the model's bins (a bin partly inside the window counts pro rata, closed
+hours count zero, daylight-saving days have 23 or 25 hours). Days after the history get latent
+deviations simulated forward from each draw's AR(1) with a fixed seed, so a query always gives the
+same answer from the same version. The predictive count is the mixture over draws of
+Poisson(Λ_d), summarised exactly by :mod:`models.mixture`.
+
+This module imports numpy, pandas and scipy only: answering a query never loads PyMC.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from models.binning import bin_grid, check_zone, local_features
+from models.exceptions import InputError, WindowError
+from models.mixture import MixtureSummary, summarise
+from models.posterior import CompactPosterior
+
+__all__ = [
+    "DEFAULT_LEVELS",
+    "MAX_HORIZON_DAYS",
+    "Forecast",
+    "expected_counts",
+    "forecast",
+    "parse_instant",
+    "parse_step",
+    "split_range",
+]
+
+DEFAULT_LEVELS: tuple[float, ...] = (0.8, 0.95)
+#: Furthest a window may end after the last history day, in days (trend extrapolation beyond a
+#: year is rarely trustworthy).
+MAX_HORIZON_DAYS = 400
+_BLOCK_BINS = 2048
+_NS_PER_MINUTE = 60 * 10**9
+
+
+def parse_instant(text: str | dt.datetime, *, tz: str | None = None) -> pd.Timestamp:
+    """Parse an ISO 8601 instant; a naive value is read as local time in ``tz``.
+
+    Examples
+    --------
+    >>> parse_instant("2026-03-09T09:00", tz="America/Halifax").isoformat()
+    '2026-03-09T09:00:00-03:00'
+    """
+    try:
+        stamp = pd.Timestamp(text)
+    except (ValueError, TypeError) as exc:
+        raise WindowError(f"time {text!r} is not an ISO 8601 date-time") from exc
+    if stamp is pd.NaT:
+        raise WindowError(f"time {text!r} is not an ISO 8601 date-time")
+    if stamp.tzinfo is None:
+        if tz is None:
+            raise WindowError(
+                f"time {text!s} has no UTC offset and no zone was given; add an offset "
+                "(e.g. 2026-03-09T09:00-03:00) or a zone"
+            )
+        check_zone(tz)
+        try:
+            stamp = stamp.tz_localize(tz, nonexistent="raise", ambiguous="raise")
+        except Exception as exc:  # pandas raises NonExistentTimeError / AmbiguousTimeError
+            raise WindowError(
+                f"local time {text!s} in {tz} does not exist or is ambiguous (daylight-saving "
+                "change); give a UTC offset"
+            ) from exc
+    return stamp
+
+
+def parse_step(text: str) -> pd.Timedelta:
+    """Parse a window step such as ``15min``, ``30min``, ``1h`` or ``1d`` (whole minutes)."""
+    try:
+        step = pd.Timedelta(text)
+    except (ValueError, TypeError) as exc:
+        raise WindowError(f"step {text!r} is not a duration like 15min, 1h or 1d") from exc
+    if step <= pd.Timedelta(0) or step % pd.Timedelta(minutes=1) != pd.Timedelta(0):
+        raise WindowError(f"step {text!r} must be a positive whole number of minutes")
+    return step
+
+
+def split_range(
+    start: pd.Timestamp, end: pd.Timestamp, step: pd.Timedelta | None
+) -> tuple[pd.DatetimeIndex, pd.DatetimeIndex]:
+    """Cut ``[start, end)`` into consecutive windows of ``step`` (the last may be shorter)."""
+    if end <= start:
+        raise WindowError(f"window end {end.isoformat()} is not after its start {start.isoformat()}")
+    if step is None:
+        return pd.DatetimeIndex([start]), pd.DatetimeIndex([end])
+    starts = pd.date_range(start, end, freq=step, inclusive="left")
+    ends = starts[1:].append(pd.DatetimeIndex([end]))
+    return starts, ends
+
+
+def _latent_path(posterior: CompactPosterior, last_day: int) -> np.ndarray:
+    """Latent deviation per draw for days 0..last_day; days after the history simulated."""
+    known = posterior.latent.astype(np.float64)
+    extra = last_day + 1 - posterior.n_days
+    if extra <= 0 or not posterior.spec.latent_daily:
+        if extra > 0:
+            known = np.concatenate([known, np.zeros((posterior.n_draws, extra))], axis=1)
+        return known
+    # Innovations drawn day by day (row k = day n_days + k): a longer query extends the same path.
+    shocks = np.random.default_rng(posterior.seed).standard_normal((extra, posterior.n_draws))
+    rho = posterior.latent_rho.astype(np.float64)
+    sd = posterior.latent_sd.astype(np.float64)
+    future = np.empty((posterior.n_draws, extra))
+    state = known[:, -1]
+    for k in range(extra):
+        state = rho * state + sd * shocks[k]
+        future[:, k] = state
+    return np.concatenate([known, future], axis=1)
+
+
+def _check_windows(
+    posterior: CompactPosterior,
+    starts: pd.DatetimeIndex,
+    ends: pd.DatetimeIndex,
+    horizon_days: int,
+) -> None:
+    if len(starts) != len(ends):
+        raise WindowError(f"{len(starts)} window starts but {len(ends)} ends")
+    if len(starts) == 0:
+        raise WindowError("no windows requested; give at least one start and end")
+    if starts.tz is None or ends.tz is None:
+        raise WindowError("window times must carry a UTC offset or zone")
+    bad = np.flatnonzero(ends.as_unit("ns").asi8 <= starts.as_unit("ns").asi8)
+    if bad.size:
+        i = int(bad[0])
+        raise WindowError(
+            f"window {i}: end {ends[i].isoformat()} is not after start {starts[i].isoformat()}"
+        )
+    cal = posterior.calendar
+    first = pd.Timestamp(cal.first_day).tz_localize(cal.tz, nonexistent="shift_forward", ambiguous=True)
+    early = np.flatnonzero(starts.as_unit("ns").asi8 < first.value)
+    if early.size:
+        i = int(early[0])
+        raise WindowError(
+            f"window {i} starts {starts[i].isoformat()}, before the history begins "
+            f"({first.isoformat()}); windows must start on or after it"
+        )
+    limit_day = posterior.history_end + dt.timedelta(days=horizon_days)
+    limit = pd.Timestamp(limit_day).tz_localize(cal.tz, nonexistent="shift_forward", ambiguous=True)
+    late = np.flatnonzero(ends.as_unit("ns").asi8 > limit.value)
+    if late.size:
+        i = int(late[0])
+        raise WindowError(
+            f"window {i} ends {ends[i].isoformat()}, beyond the forecast horizon of {horizon_days} "
+            f"days after the history ({limit.isoformat()})"
+        )
+
+
+def expected_counts(
+    posterior: CompactPosterior,
+    starts: pd.DatetimeIndex,
+    ends: pd.DatetimeIndex,
+    *,
+    horizon_days: int = MAX_HORIZON_DAYS,
+) -> np.ndarray:
+    """Expected count Λ per draw and window, shape ``(draw, window)``.
+
+    Windows are grouped into clusters of overlapping or touching spans, each laid on the model's
+    bin grid in blocks, so memory stays bounded however far apart or long the windows are.
+    """
+    _check_windows(posterior, starts, ends, horizon_days)
+    cal = posterior.calendar
+    bin_ns = cal.bin_minutes * _NS_PER_MINUTE
+    s_ns, e_ns = starts.as_unit("ns").asi8, ends.as_unit("ns").asi8
+    order = np.argsort(s_ns, kind="stable")
+    result = np.empty((posterior.n_draws, len(starts)))
+    cluster: list[int] = []
+    cluster_end = -1
+    for i in order:
+        if cluster and s_ns[i] > cluster_end:
+            _integrate_cluster(posterior, np.asarray(cluster), s_ns, e_ns, bin_ns, result)
+            cluster = []
+        cluster.append(int(i))
+        cluster_end = max(cluster_end, int(e_ns[i])) if len(cluster) > 1 else int(e_ns[i])
+    _integrate_cluster(posterior, np.asarray(cluster), s_ns, e_ns, bin_ns, result)
+    return result
+
+
+def _integrate_cluster(
+    posterior: CompactPosterior,
+    members: np.ndarray,
+    s_ns: np.ndarray,
+    e_ns: np.ndarray,
+    bin_ns: int,
+    out: np.ndarray,
+) -> None:
+    cal = posterior.calendar
+    lo, hi = int(s_ns[members].min()), int(e_ns[members].max())
+    _, _, days, _ = local_features(
+        pd.DatetimeIndex(np.array([lo, hi - 1], dtype="datetime64[ns]")).tz_localize("UTC"),
+        tz=cal.tz,
+        bin_minutes=cal.bin_minutes,
+    )
+    grid = bin_grid(days[0].astype(dt.date), (days[1] + 1).astype(dt.date), tz=cal.tz,
+                    bin_minutes=cal.bin_minutes)
+    feats = cal.features(grid)
+    latent = _latent_path(posterior, int(feats.day.max()))
+    open_share = np.ones(len(grid))
+    if posterior.opening is not None:
+        open_share = posterior.opening.open_fraction(
+            dow=feats.dow, start_minute=feats.minute, bin_minutes=cal.bin_minutes
+        )
+    bin_hours = cal.bin_minutes / 60.0
+    edges = grid.as_unit("ns").asi8
+    # Every window start and end is an "endpoint" whose cumulative integral we need.
+    points = np.concatenate([s_ns[members], e_ns[members]])
+    index = np.clip(np.searchsorted(edges, points, side="right") - 1, 0, len(edges) - 1)
+    within = (points - edges[index]) / bin_ns
+    cumulative = np.empty((posterior.n_draws, len(points)))
+    offset = np.zeros(posterior.n_draws)
+    week = posterior.week_log_rate.astype(np.float64)
+    trend = posterior.trend.astype(np.float64)[:, None]
+    holiday = posterior.holiday_effect.astype(np.float64)[:, None]
+    for b0 in range(0, len(grid), _BLOCK_BINS):
+        b1 = min(b0 + _BLOCK_BINS, len(grid))
+        block = slice(b0, b1)
+        log_rate = (
+            week[:, feats.dow[block], feats.slot[block]]
+            + trend * feats.years[block]
+            + holiday * feats.holiday[block]
+            + latent[:, feats.day[block]]
+        )
+        per_bin = np.exp(log_rate) * (open_share[block] * bin_hours)
+        before = offset[:, None] + np.cumsum(per_bin, axis=1) - per_bin
+        here = np.flatnonzero((index >= b0) & (index < b1))
+        local = index[here] - b0
+        cumulative[:, here] = before[:, local] + per_bin[:, local] * within[here]
+        offset = offset + per_bin.sum(axis=1)
+    n = len(members)
+    out[:, members] = cumulative[:, n:] - cumulative[:, :n]
+
+
+@dataclass(frozen=True)
+class Forecast:
+    """Predictive summaries for a list of windows (and optionally their total)."""
+
+    starts: pd.DatetimeIndex
+    ends: pd.DatetimeIndex
+    summary: MixtureSummary
+    tz: str
+    total: MixtureSummary | None = None
+
+    def rows(self) -> list[dict[str, Any]]:
+        """One JSON-ready dict per window."""
+        return _rows(self.summary, self.starts, self.ends, self.tz)
+
+    def total_row(self) -> dict[str, Any] | None:
+        """The total over all windows, or None if not requested."""
+        if self.total is None:
+            return None
+        return _rows(self.total, self.starts[:1], self.ends[-1:], self.tz)[0]
+
+
+def _rows(
+    summary: MixtureSummary, starts: pd.DatetimeIndex, ends: pd.DatetimeIndex, tz: str
+) -> list[dict[str, Any]]:
+    local_starts = starts.tz_convert(tz)
+    local_ends = ends.tz_convert(tz)
+    rows = []
+    for i in range(len(starts)):
+        row: dict[str, Any] = {
+            "start": local_starts[i].isoformat(),
+            "end": local_ends[i].isoformat(),
+            "mean": float(summary.mean[i]),
+            "sd": float(summary.sd[i]),
+            "p_zero": float(summary.p_zero[i]),
+            "intervals": {
+                _key(level): [int(lo[i]), int(hi[i])] for level, (lo, hi) in summary.intervals.items()
+            },
+            "quantiles": {_key(q): int(v[i]) for q, v in summary.quantiles.items()},
+        }
+        if summary.at_least:
+            row["at_least"] = {str(k): float(p[i]) for k, p in summary.at_least.items()}
+        rows.append(row)
+    return rows
+
+
+def _key(value: float) -> str:
+    return format(value, "g")
+
+
+def forecast(
+    posterior: CompactPosterior,
+    starts: pd.DatetimeIndex,
+    ends: pd.DatetimeIndex,
+    *,
+    levels: Sequence[float] = DEFAULT_LEVELS,
+    quantiles: Sequence[float] = (),
+    at_least: Sequence[int] = (),
+    total: bool = False,
+    horizon_days: int = MAX_HORIZON_DAYS,
+) -> Forecast:
+    """Predictive count distribution for each window ``[starts[i], ends[i])``.
+
+    Parameters
+    ----------
+    posterior
+        Compact posterior of one series version.
+    starts, ends
+        Tz-aware window bounds.
+    levels
+        Central interval levels in (0, 1).
+    quantiles
+        Quantile levels in (0, 1); reported exactly from the mixture CDF.
+    at_least
+        Thresholds k for P(N >= k).
+    total
+        Also summarise the total over all windows (which must not overlap), from the same draws.
+    horizon_days
+        Latest allowed window end, in days after the history.
+    """
+    lam = expected_counts(posterior, starts, ends, horizon_days=horizon_days)
+    summary = summarise(lam, quantiles=tuple(quantiles), levels=tuple(levels), at_least=tuple(at_least))
+    total_summary = None
+    if total:
+        s_ns, e_ns = starts.as_unit("ns").asi8, ends.as_unit("ns").asi8
+        order = np.argsort(s_ns)
+        if np.any(s_ns[order][1:] < e_ns[order][:-1]):
+            raise InputError("a total over windows needs windows that do not overlap")
+        total_summary = summarise(
+            lam.sum(axis=1, keepdims=True),
+            quantiles=tuple(quantiles),
+            levels=tuple(levels),
+            at_least=tuple(at_least),
+        )
+    return Forecast(
+        starts=starts, ends=ends, summary=summary, tz=posterior.calendar.tz, total=total_summary
+    )

@@ -1,0 +1,64 @@
+"""Shared fixtures: synthetic posteriors (no PyMC) and one tiny real fit per session."""
+
+from __future__ import annotations
+
+import datetime as dt
+import os
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+# One fixed compile cache for the whole suite (and for CLI subprocesses it starts).
+os.environ.setdefault(
+    "PYTENSOR_FLAGS", f"compiledir={Path(__file__).resolve().parents[1] / '.cache' / 'pytensor'}"
+)
+
+from models.binning import OpeningHours  # noqa: E402
+from models.design import Calendar  # noqa: E402
+from models.posterior import CompactPosterior  # noqa: E402
+from models.spec import ModelSpec  # noqa: E402
+
+
+def synthetic_posterior(
+    week_rate: np.ndarray,
+    *,
+    tz: str = "America/Chicago",
+    first_day: dt.date = dt.date(2026, 2, 2),
+    n_days: int = 28,
+    draws: int = 1,
+    bin_minutes: int = 60,
+    opening: OpeningHours | None = None,
+    latent_rho: float = 0.0,
+    latent_sd: float = 0.0,
+    latent_last: float = 0.0,
+    trend: float = 0.0,
+    seed: int = 5,
+) -> CompactPosterior:
+    """A posterior whose every draw has the weekly rate table ``week_rate`` (7 x slots, per hour)."""
+    spec = ModelSpec(bin_minutes=bin_minutes, latent_daily=latent_sd > 0, trend=trend != 0)
+    week = np.broadcast_to(np.log(week_rate), (draws, 7, spec.slots_per_day)).astype(np.float32)
+    latent = np.zeros((draws, n_days), dtype=np.float32)
+    latent[:, -1] = latent_last
+    return CompactPosterior(
+        week_log_rate=week.copy(),
+        trend=np.full(draws, trend, dtype=np.float32),
+        holiday_effect=np.zeros(draws, dtype=np.float32),
+        latent=latent,
+        latent_rho=np.full(draws, latent_rho, dtype=np.float32),
+        latent_sd=np.full(draws, latent_sd, dtype=np.float32),
+        calendar=Calendar(tz=tz, bin_minutes=bin_minutes, first_day=first_day,
+                          trend_origin=first_day + dt.timedelta(days=n_days // 2)),
+        spec=spec,
+        opening=opening,
+        seed=seed,
+    )
+
+
+@pytest.fixture
+def weekly_table() -> np.ndarray:
+    """An hourly weekly rate table of our own: a daytime hump, quieter weekends."""
+    hours = np.arange(24)
+    day_shape = 1.0 + 9.0 * np.exp(-0.5 * ((hours - 13) / 3.5) ** 2)
+    scale = np.array([1.0, 1.1, 1.05, 1.0, 1.3, 0.6, 0.5])
+    return scale[:, None] * day_shape[None, :]
