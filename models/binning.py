@@ -106,7 +106,9 @@ class OpeningHours:
         """Parse the text form described in the class docstring."""
         week: list[list[tuple[int, int]]] = [[] for _ in range(7)]
         if not text or not text.strip():
-            raise InputError("opening hours are empty; write e.g. 'Mon-Fri 07:00-21:00; Sat 09:00-13:00'")
+            raise InputError(
+                "opening hours are empty; write e.g. 'Mon-Fri 07:00-21:00; Sat 09:00-13:00'"
+            )
         for clause in text.split(";"):
             if not clause.strip():
                 continue
@@ -168,9 +170,7 @@ def _parse_span(text: str, clause: str) -> tuple[int, int]:
     h1, m1, h2, m2 = (int(g) for g in match.groups())
     lo, hi = h1 * 60 + m1, h2 * 60 + m2
     if not (0 <= lo < hi <= 24 * 60) or m1 > 59 or m2 > 59:
-        raise InputError(
-            f"time span {text!r} must open before it closes, within 00:00-24:00"
-        )
+        raise InputError(f"time span {text!r} must open before it closes, within 00:00-24:00")
     return lo, hi
 
 
@@ -206,7 +206,9 @@ def parse_timestamps(values: pd.Series, *, tz: str, column: str = "timestamp") -
     text = text.str.strip()
     has_offset = text.str.contains(_HAS_OFFSET).to_numpy(dtype=bool)
     if has_offset.any() and not has_offset.all():
-        row = int(np.flatnonzero(~has_offset)[0] if has_offset[0] else np.flatnonzero(has_offset)[0])
+        row = int(
+            np.flatnonzero(~has_offset)[0] if has_offset[0] else np.flatnonzero(has_offset)[0]
+        )
         raise TimestampError(
             f"column {column!r} row {row}: {text.iloc[row]!r} mixes timestamps with and without a "
             "UTC offset; give every row an offset, or none (local times in --tz)"
@@ -290,7 +292,9 @@ class BinnedSeries:
         return int(self.count.sum())
 
 
-def bin_grid(first_day: dt.date, end_day: dt.date, *, tz: str, bin_minutes: int) -> pd.DatetimeIndex:
+def bin_grid(
+    first_day: dt.date, end_day: dt.date, *, tz: str, bin_minutes: int
+) -> pd.DatetimeIndex:
     """Bin starts (UTC) from local midnight of ``first_day`` to local midnight of ``end_day``.
 
     Steps are in absolute time, so daylight-saving days get 23 or 25 hourly bins.

@@ -123,7 +123,9 @@ class CompactPosterior:
                     f"array {name} has shape {getattr(self, name).shape}, expected {shape}"
                 )
         if self.latent.ndim != 2 or self.latent.shape[0] != d:
-            raise CorruptArtefact(f"array latent has shape {self.latent.shape}, expected ({d}, days)")
+            raise CorruptArtefact(
+                f"array latent has shape {self.latent.shape}, expected ({d}, days)"
+            )
         for name in _ARRAYS:
             if not np.isfinite(getattr(self, name)).all():
                 raise CorruptArtefact(f"array {name} holds non-finite values")

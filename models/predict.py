@@ -91,7 +91,9 @@ def split_range(
 ) -> tuple[pd.DatetimeIndex, pd.DatetimeIndex]:
     """Cut ``[start, end)`` into consecutive windows of ``step`` (the last may be shorter)."""
     if end <= start:
-        raise WindowError(f"window end {end.isoformat()} is not after its start {start.isoformat()}")
+        raise WindowError(
+            f"window end {end.isoformat()} is not after its start {start.isoformat()}"
+        )
     if step is None:
         return pd.DatetimeIndex([start]), pd.DatetimeIndex([end])
     starts = pd.date_range(start, end, freq=step, inclusive="left")
@@ -138,7 +140,9 @@ def _check_windows(
             f"window {i}: end {ends[i].isoformat()} is not after start {starts[i].isoformat()}"
         )
     cal = posterior.calendar
-    first = pd.Timestamp(cal.first_day).tz_localize(cal.tz, nonexistent="shift_forward", ambiguous=True)
+    first = pd.Timestamp(cal.first_day).tz_localize(
+        cal.tz, nonexistent="shift_forward", ambiguous=True
+    )
     early = np.flatnonzero(starts.as_unit("ns").asi8 < first.value)
     if early.size:
         i = int(early[0])
@@ -202,8 +206,12 @@ def _integrate_cluster(
         tz=cal.tz,
         bin_minutes=cal.bin_minutes,
     )
-    grid = bin_grid(days[0].astype(dt.date), (days[1] + 1).astype(dt.date), tz=cal.tz,
-                    bin_minutes=cal.bin_minutes)
+    grid = bin_grid(
+        days[0].astype(dt.date),
+        (days[1] + 1).astype(dt.date),
+        tz=cal.tz,
+        bin_minutes=cal.bin_minutes,
+    )
     feats = cal.features(grid)
     latent = _latent_path(posterior, int(feats.day.max()))
     open_share = np.ones(len(grid))
@@ -276,7 +284,8 @@ def _rows(
             "sd": float(summary.sd[i]),
             "p_zero": float(summary.p_zero[i]),
             "intervals": {
-                _key(level): [int(lo[i]), int(hi[i])] for level, (lo, hi) in summary.intervals.items()
+                _key(level): [int(lo[i]), int(hi[i])]
+                for level, (lo, hi) in summary.intervals.items()
             },
             "quantiles": {_key(q): int(v[i]) for q, v in summary.quantiles.items()},
         }
@@ -321,7 +330,9 @@ def forecast(
         Latest allowed window end, in days after the history.
     """
     lam = expected_counts(posterior, starts, ends, horizon_days=horizon_days)
-    summary = summarise(lam, quantiles=tuple(quantiles), levels=tuple(levels), at_least=tuple(at_least))
+    summary = summarise(
+        lam, quantiles=tuple(quantiles), levels=tuple(levels), at_least=tuple(at_least)
+    )
     total_summary = None
     if total:
         s_ns, e_ns = starts.as_unit("ns").asi8, ends.as_unit("ns").asi8

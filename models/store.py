@@ -255,7 +255,9 @@ class FileStore:
         _atomic_write(series_dir / "CURRENT", (version + "\n").encode())
 
     def _next_version(self, series: str) -> str:
-        numbers = [int(m.group(1)) for v in self._all_version_names(series) if (m := _VERSION.match(v))]
+        numbers = [
+            int(m.group(1)) for v in self._all_version_names(series) if (m := _VERSION.match(v))
+        ]
         return f"v{max(numbers, default=0) + 1:04d}"
 
     def _remove_stale_temporaries(self, series_dir: Path) -> None:
@@ -326,7 +328,9 @@ class FileStore:
         try:
             posterior = CompactPosterior.from_bytes(payload, manifest)
         except (KeyError, TypeError, ValueError) as exc:
-            raise CorruptArtefact(f"{series} {version}: manifest does not describe the draws: {exc}") from exc
+            raise CorruptArtefact(
+                f"{series} {version}: manifest does not describe the draws: {exc}"
+            ) from exc
         return StoredVersion(series, version, manifest, posterior)
 
     def posterior_path(self, series: str, version: str | None = None) -> Path:

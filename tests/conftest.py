@@ -14,10 +14,10 @@ os.environ.setdefault(
     "PYTENSOR_FLAGS", f"compiledir={Path(__file__).resolve().parents[1] / '.cache' / 'pytensor'}"
 )
 
-from models.binning import OpeningHours  # noqa: E402
-from models.design import Calendar  # noqa: E402
-from models.posterior import CompactPosterior  # noqa: E402
-from models.spec import ModelSpec  # noqa: E402
+from models.binning import OpeningHours
+from models.design import Calendar
+from models.posterior import CompactPosterior
+from models.spec import ModelSpec
 
 
 def synthetic_posterior(
@@ -47,8 +47,12 @@ def synthetic_posterior(
         latent=latent,
         latent_rho=np.full(draws, latent_rho, dtype=np.float32),
         latent_sd=np.full(draws, latent_sd, dtype=np.float32),
-        calendar=Calendar(tz=tz, bin_minutes=bin_minutes, first_day=first_day,
-                          trend_origin=first_day + dt.timedelta(days=n_days // 2)),
+        calendar=Calendar(
+            tz=tz,
+            bin_minutes=bin_minutes,
+            first_day=first_day,
+            trend_origin=first_day + dt.timedelta(days=n_days // 2),
+        ),
         spec=spec,
         opening=opening,
         seed=seed,

@@ -85,7 +85,9 @@ class TestParseTimestamps:
 class TestBinEvents:
     def test_counts_and_zeros_and_dst(self) -> None:
         stamps = parse_timestamps(
-            pd.Series(["2026-03-08T01:10-06:00", "2026-03-08T01:50-06:00", "2026-03-08T03:05-05:00"]),
+            pd.Series(
+                ["2026-03-08T01:10-06:00", "2026-03-08T01:50-06:00", "2026-03-08T03:05-05:00"]
+            ),
             tz=CHICAGO,
         )
         binned = bin_events(stamps, tz=CHICAGO, bin_minutes=60)
@@ -109,7 +111,12 @@ class TestBinEvents:
     def test_arrival_in_closed_hours_is_an_error(self) -> None:
         stamps = parse_timestamps(pd.Series(["2026-07-04T10:00-05:00"]), tz=CHICAGO)  # Saturday
         with pytest.raises(InputError, match="declare closed"):
-            bin_events(stamps, tz=CHICAGO, bin_minutes=60, opening=OpeningHours.parse("Mon-Fri 08:00-17:00"))
+            bin_events(
+                stamps,
+                tz=CHICAGO,
+                bin_minutes=60,
+                opening=OpeningHours.parse("Mon-Fri 08:00-17:00"),
+            )
 
     def test_until_cuts_the_last_day(self) -> None:
         stamps = parse_timestamps(pd.Series(["2026-07-01T09:10-05:00"]), tz=CHICAGO)
@@ -125,15 +132,22 @@ class TestBinCounts:
         return pd.DataFrame({"start": starts, "count": counts})
 
     def test_bin_width_inferred_and_gaps_unobserved(self) -> None:
-        frame = self.frame([3, 4, 5], ["2026-07-01T00:00-05:00", "2026-07-01T00:30-05:00",
-                                       "2026-07-01T02:00-05:00"])
+        frame = self.frame(
+            [3, 4, 5],
+            ["2026-07-01T00:00-05:00", "2026-07-01T00:30-05:00", "2026-07-01T02:00-05:00"],
+        )
         binned = bin_counts(frame, tz=CHICAGO)
         assert binned.bin_minutes == 30
         assert len(binned.count) == 3  # the 01:00-02:00 gap is unobserved, not zero
 
     @pytest.mark.parametrize(
         ("value", "message"),
-        [(-1, "negative"), ("2.5", "whole number"), ("n/a", "not a number"), (None, "not a number")],
+        [
+            (-1, "negative"),
+            ("2.5", "whole number"),
+            ("n/a", "not a number"),
+            (None, "not a number"),
+        ],
     )
     def test_bad_counts_name_row_and_value(self, value: object, message: str) -> None:
         with pytest.raises(CountError, match=f"row 1.*{message}"):

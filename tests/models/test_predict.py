@@ -30,12 +30,16 @@ def reference_integral(table: np.ndarray, start: str, end: str, tz: str = CHICAG
         return float(table[local.weekday(), local.hour]) / 3600.0
 
     cuts = np.unique(np.concatenate([[a, b], np.arange(np.ceil(a / 3600) * 3600, b, 3600)]))
-    return sum(integrate.quad(rate_per_second, lo, hi, limit=200)[0] for lo, hi in zip(cuts[:-1], cuts[1:]))
+    return sum(
+        integrate.quad(rate_per_second, lo, hi, limit=200)[0] for lo, hi in zip(cuts[:-1], cuts[1:])
+    )
 
 
 def windows(*pairs: tuple[str, str]) -> tuple[pd.DatetimeIndex, pd.DatetimeIndex]:
-    return (pd.DatetimeIndex([pd.Timestamp(a).tz_convert("UTC") for a, _ in pairs]),
-            pd.DatetimeIndex([pd.Timestamp(b).tz_convert("UTC") for _, b in pairs]))
+    return (
+        pd.DatetimeIndex([pd.Timestamp(a).tz_convert("UTC") for a, _ in pairs]),
+        pd.DatetimeIndex([pd.Timestamp(b).tz_convert("UTC") for _, b in pairs]),
+    )
 
 
 class TestExpectedCounts:
@@ -65,19 +69,26 @@ class TestExpectedCounts:
 
     def test_many_windows_in_any_order_equal_one_by_one(self, weekly_table) -> None:
         posterior = synthetic_posterior(weekly_table, draws=3)
-        pairs = [("2026-03-03T10:00-06:00", "2026-03-03T11:00-06:00"),
-                 ("2026-03-01T08:00-06:00", "2026-03-01T08:45-06:00"),
-                 ("2026-06-01T08:00-05:00", "2026-06-01T09:00-05:00")]
+        pairs = [
+            ("2026-03-03T10:00-06:00", "2026-03-03T11:00-06:00"),
+            ("2026-03-01T08:00-06:00", "2026-03-01T08:45-06:00"),
+            ("2026-06-01T08:00-05:00", "2026-06-01T09:00-05:00"),
+        ]
         together = expected_counts(posterior, *windows(*pairs))
         alone = np.hstack([expected_counts(posterior, *windows(p)) for p in pairs])
         np.testing.assert_allclose(together, alone, rtol=1e-9)
 
     def test_closed_hours_forecast_zero(self, weekly_table) -> None:
-        posterior = synthetic_posterior(weekly_table, opening=OpeningHours.parse("Mon-Fri 08:30-17:00"))
-        lam = expected_counts(posterior, *windows(
-            ("2026-03-07T09:00-06:00", "2026-03-07T12:00-06:00"),  # Saturday: closed
-            ("2026-03-02T08:00-06:00", "2026-03-02T10:00-06:00"),  # opens 08:30
-        ))
+        posterior = synthetic_posterior(
+            weekly_table, opening=OpeningHours.parse("Mon-Fri 08:30-17:00")
+        )
+        lam = expected_counts(
+            posterior,
+            *windows(
+                ("2026-03-07T09:00-06:00", "2026-03-07T12:00-06:00"),  # Saturday: closed
+                ("2026-03-02T08:00-06:00", "2026-03-02T10:00-06:00"),  # opens 08:30
+            ),
+        )
         assert lam[0, 0] == 0.0
         assert lam[0, 1] == pytest.approx(0.5 * weekly_table[0, 8] + weekly_table[0, 9])
 
@@ -87,22 +98,27 @@ class TestExpectedCounts:
         origin = posterior.calendar.trend_origin
         later = origin + dt.timedelta(days=365 + 28)  # same weekday... checked below
         start = pd.Timestamp(later).tz_localize(CHICAGO) + pd.Timedelta(hours=10)
-        lam = expected_counts(posterior, pd.DatetimeIndex([start]),
-                              pd.DatetimeIndex([start + pd.Timedelta(hours=1)]))[0, 0]
+        lam = expected_counts(
+            posterior, pd.DatetimeIndex([start]), pd.DatetimeIndex([start + pd.Timedelta(hours=1)])
+        )[0, 0]
         years = (later - origin).days / 365.25
-        assert lam == pytest.approx(weekly_table[later.weekday(), 10] * np.exp(0.3 * years), rel=1e-5)
+        assert lam == pytest.approx(
+            weekly_table[later.weekday(), 10] * np.exp(0.3 * years), rel=1e-5
+        )
 
     def test_future_latent_path_follows_the_ar1_law(self, weekly_table) -> None:
         # AR(1) k steps ahead of z0: mean rho^k z0, variance sd^2 (1 - rho^(2k)) / (1 - rho^2)
         # (standard AR(1) algebra, e.g. Hamilton, Time Series Analysis, ch. 3 [from memory]).
         rho, sd, z0, draws = 0.7, 0.2, 0.4, 40_000
-        posterior = synthetic_posterior(np.ones((7, 24)), draws=draws, latent_rho=rho,
-                                        latent_sd=sd, latent_last=z0)
+        posterior = synthetic_posterior(
+            np.ones((7, 24)), draws=draws, latent_rho=rho, latent_sd=sd, latent_last=z0
+        )
         k = 3
         day = posterior.history_end + dt.timedelta(days=k - 1)
         start = pd.Timestamp(day).tz_localize(CHICAGO) + pd.Timedelta(hours=12)
-        lam = expected_counts(posterior, pd.DatetimeIndex([start]),
-                              pd.DatetimeIndex([start + pd.Timedelta(hours=1)]))[:, 0]
+        lam = expected_counts(
+            posterior, pd.DatetimeIndex([start]), pd.DatetimeIndex([start + pd.Timedelta(hours=1)])
+        )[:, 0]
         z = np.log(lam)
         mean, var = rho**k * z0, sd**2 * (1 - rho ** (2 * k)) / (1 - rho**2)
         assert z.mean() == pytest.approx(mean, abs=4 * np.sqrt(var / draws))
@@ -111,8 +127,9 @@ class TestExpectedCounts:
     def test_future_path_is_the_same_whatever_the_query_reaches(self, weekly_table) -> None:
         posterior = synthetic_posterior(weekly_table, draws=50, latent_rho=0.5, latent_sd=0.3)
         start = pd.Timestamp(posterior.history_end).tz_localize(CHICAGO) + pd.Timedelta(hours=9)
-        one = expected_counts(posterior, pd.DatetimeIndex([start]),
-                              pd.DatetimeIndex([start + pd.Timedelta(hours=1)]))
+        one = expected_counts(
+            posterior, pd.DatetimeIndex([start]), pd.DatetimeIndex([start + pd.Timedelta(hours=1)])
+        )
         starts = pd.DatetimeIndex([start, start + pd.Timedelta(days=30)])
         two = expected_counts(posterior, starts, starts + pd.Timedelta(hours=1))
         np.testing.assert_array_equal(one[:, 0], two[:, 0])
@@ -124,8 +141,13 @@ class TestForecast:
         start, end = "2026-03-07T22:15-06:00", "2026-03-08T05:40-05:00"
         mu = reference_integral(weekly_table, start, end)
         posterior = synthetic_posterior(weekly_table, draws=4)
-        result = forecast(posterior, *windows((start, end)), levels=(0.8, 0.95),
-                          quantiles=(0.05, 0.5, 0.95), at_least=(1, 5, 12))
+        result = forecast(
+            posterior,
+            *windows((start, end)),
+            levels=(0.8, 0.95),
+            quantiles=(0.05, 0.5, 0.95),
+            at_least=(1, 5, 12),
+        )
         row = result.rows()[0]
         assert row["mean"] == pytest.approx(mu, rel=1e-6)
         assert row["sd"] == pytest.approx(np.sqrt(mu), rel=1e-6)
@@ -150,27 +172,38 @@ class TestForecast:
     def test_total_of_overlapping_windows_is_refused(self, weekly_table) -> None:
         posterior = synthetic_posterior(weekly_table)
         with pytest.raises(ValueError, match="overlap"):
-            forecast(posterior, *windows(("2026-03-02T09:00-06:00", "2026-03-02T11:00-06:00"),
-                                         ("2026-03-02T10:00-06:00", "2026-03-02T12:00-06:00")),
-                     total=True)
+            forecast(
+                posterior,
+                *windows(
+                    ("2026-03-02T09:00-06:00", "2026-03-02T11:00-06:00"),
+                    ("2026-03-02T10:00-06:00", "2026-03-02T12:00-06:00"),
+                ),
+                total=True,
+            )
 
 
 class TestWindowErrors:
     def test_reversed_window(self, weekly_table) -> None:
         with pytest.raises(WindowError, match="window 0: end .* not after start"):
-            expected_counts(synthetic_posterior(weekly_table),
-                            *windows(("2026-03-02T10:00-06:00", "2026-03-02T09:00-06:00")))
+            expected_counts(
+                synthetic_posterior(weekly_table),
+                *windows(("2026-03-02T10:00-06:00", "2026-03-02T09:00-06:00")),
+            )
 
     def test_before_history(self, weekly_table) -> None:
         with pytest.raises(WindowError, match="before the history"):
-            expected_counts(synthetic_posterior(weekly_table),
-                            *windows(("2025-03-02T10:00-06:00", "2025-03-02T11:00-06:00")))
+            expected_counts(
+                synthetic_posterior(weekly_table),
+                *windows(("2025-03-02T10:00-06:00", "2025-03-02T11:00-06:00")),
+            )
 
     def test_beyond_horizon(self, weekly_table) -> None:
         with pytest.raises(WindowError, match="horizon of 10 days"):
-            expected_counts(synthetic_posterior(weekly_table),
-                            *windows(("2026-04-20T10:00-05:00", "2026-04-20T11:00-05:00")),
-                            horizon_days=10)
+            expected_counts(
+                synthetic_posterior(weekly_table),
+                *windows(("2026-04-20T10:00-05:00", "2026-04-20T11:00-05:00")),
+                horizon_days=10,
+            )
 
     def test_naive_time_without_zone(self) -> None:
         with pytest.raises(WindowError, match="no UTC offset"):

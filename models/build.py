@@ -1,0 +1,128 @@
+"""Turn a :class:`~models.spec.ModelSpec` and :class:`~models.design.ModelData` into a PyMC model.
+
+This is the only module that builds PyMC graphs. Effects with plenty of data behind them use the
+centred :class:`pymc.ZeroSumNormal` (measured faster and free of divergences here, compared with a
+non-centred form), each block with its own learned scale so it is partially pooled toward zero.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pymc as pm
+import pytensor.tensor as pt
+
+from models.design import ModelData
+from models.spec import ModelSpec
+
+__all__ = ["build_model"]
+
+
+def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
+    """Build the Poisson log-rate model with named dims ``dow``, ``slot``, ``day`` and ``bin``.
+
+    Parameters
+    ----------
+    data
+        Binned history in model coordinates.
+    spec
+        Which terms and priors.
+
+    Returns
+    -------
+    pymc.Model
+        With the deterministic ``week_log_rate`` (dims ``dow``, ``slot``): the log rate per hour of
+        each weekly cell at the trend origin on an ordinary day with no latent deviation.
+    """
+    feats = data.features
+    coords = {**data.coords, "bin": np.arange(len(data.count))}
+    priors = spec.priors
+    with pm.Model(coords=coords) as model:
+        if priors.baseline_gamma is not None:
+            shape, rate = priors.baseline_gamma
+            baseline_rate = pm.Gamma("baseline_rate", alpha=shape, beta=rate)
+            baseline = pm.Deterministic("baseline", pt.log(baseline_rate))
+        else:
+            baseline = pm.Normal(
+                "baseline", mu=np.log(max(data.mean_rate, 1e-3)), sigma=priors.baseline_sigma
+            )
+
+        week = pt.zeros((7, spec.slots_per_day)) + baseline
+        if spec.day_of_week:
+            dow_sd = pm.HalfNormal("dow_sd", sigma=priors.dow_scale)
+            dow_effect = pm.ZeroSumNormal("dow_effect", sigma=dow_sd, dims="dow")
+            week = week + dow_effect[:, None]
+        if spec.time_of_day:
+            slot_sd = pm.HalfNormal("slot_sd", sigma=priors.slot_scale)
+            slot_effect = pm.ZeroSumNormal("slot_effect", sigma=slot_sd, dims="slot")
+            week = week + slot_effect[None, :]
+        if spec.interaction:
+            # Shrinks toward the additive weekly shape as interaction_sd -> 0.
+            interaction_sd = pm.HalfNormal("interaction_sd", sigma=priors.interaction_scale)
+            if spec.centred_interaction:
+                interaction = pm.ZeroSumNormal(
+                    "interaction", sigma=interaction_sd, n_zerosum_axes=2, dims=("dow", "slot")
+                )
+            else:
+                # Non-centred: each cell holds little data, so the centred form funnels as
+                # interaction_sd -> 0 (r_hat 1.7 measured on 4 weeks of hourly data).
+                raw = pm.ZeroSumNormal(
+                    "interaction_raw", sigma=1.0, n_zerosum_axes=2, dims=("dow", "slot")
+                )
+                interaction = pm.Deterministic(
+                    "interaction", interaction_sd * raw, dims=("dow", "slot")
+                )
+            week = week + interaction
+        week_log_rate = pm.Deterministic("week_log_rate", week, dims=("dow", "slot"))
+
+        log_rate = week_log_rate[feats.dow, feats.slot]
+        if spec.trend:
+            trend = pm.Normal("trend", mu=0.0, sigma=priors.trend_sigma)
+            log_rate = log_rate + trend * feats.years
+        if spec.holidays is not None:
+            holiday_effect = pm.Normal("holiday_effect", mu=0.0, sigma=priors.holiday_sigma)
+            log_rate = log_rate + holiday_effect * feats.holiday
+        if spec.latent_daily:
+            rho = pm.Beta("latent_rho", alpha=3.0, beta=2.0)
+            latent_sd = pm.HalfNormal("latent_sd", sigma=priors.latent_scale)
+            if spec.centred_latent:
+                latent = pm.AR(
+                    "latent",
+                    rho=[rho],
+                    sigma=latent_sd,
+                    init_dist=pm.Normal.dist(0.0, latent_sd / pt.sqrt(1.0 - rho**2)),
+                    ar_order=1,
+                    constant=False,
+                    dims="day",
+                )
+            else:
+                innovation = pm.Normal("latent_innovation", 0.0, 1.0, dims="day")
+                latent = pm.Deterministic(
+                    "latent",
+                    _ar1_from_innovations(innovation, rho, latent_sd, data.n_days),
+                    dims="day",
+                )
+            log_rate = log_rate + latent[feats.day]
+
+        pm.Poisson(
+            "arrivals",
+            mu=pt.exp(log_rate) * data.exposure_hours,
+            observed=data.count,
+            dims="bin",
+        )
+    return model
+
+
+def _ar1_from_innovations(
+    innovation: pt.TensorVariable, rho: pt.TensorVariable, sd: pt.TensorVariable, n_days: int
+) -> pt.TensorVariable:
+    """Stationary AR(1) path z = L @ innovation, with L[i, j] = rho**(i-j) * sd for j <= i.
+
+    The first day starts from the stationary distribution, sd / sqrt(1 - rho**2). A dense
+    triangular product costs O(n_days**2) per gradient, small beside the likelihood of thousands
+    of bins, and needs no scan.
+    """
+    lag = np.subtract.outer(np.arange(n_days), np.arange(n_days))
+    lower = lag >= 0
+    powers = pt.switch(lower, rho ** np.where(lower, lag, 0), 0.0)
+    scale = pt.set_subtensor(pt.ones(n_days)[0], 1.0 / pt.sqrt(1.0 - rho**2))
+    return sd * pt.dot(powers * scale[None, :], innovation)
