@@ -33,8 +33,9 @@ __all__ = [
     "read_table",
 ]
 
-#: Allowed bin widths: label -> minutes.
-BIN_WIDTHS: dict[str, int] = {"15min": 15, "30min": 30, "1h": 60}
+#: Allowed bin widths: label -> minutes. Whole-day bins need a zone without daylight saving.
+BIN_WIDTHS: dict[str, int] = {"15min": 15, "30min": 30, "1h": 60, "1d": 1440}
+_DAY_MINUTES = 1440
 
 DAY_NAMES = ("Mon", "Tue", "Wed", "Thu", "Fri", "Sat", "Sun")
 
@@ -307,7 +308,26 @@ def bin_grid(
     """
     start = _local_midnight(first_day, tz)
     end = _local_midnight(end_day, tz)
-    return pd.date_range(start, end, freq=f"{bin_minutes}min", inclusive="left").tz_convert("UTC")
+    grid = pd.date_range(start, end, freq=f"{bin_minutes}min", inclusive="left").tz_convert("UTC")
+    if bin_minutes == _DAY_MINUTES:
+        _check_whole_days(grid, tz=tz)
+    return grid
+
+
+def _check_whole_days(starts: pd.DatetimeIndex, *, tz: str) -> None:
+    """Refuse daily bins that do not start at local midnight (a daylight-saving zone).
+
+    Bins are laid in absolute time, so a 24-hour bin drifts an hour off the local day when the
+    clocks change; daily counts do not depend on the zone, so UTC serves them exactly.
+    """
+    _, _, _, minute = local_features(starts, tz=tz, bin_minutes=1)
+    off = np.flatnonzero(minute != 0)
+    if off.size:
+        raise InputError(
+            f"daily bins in {tz} would not all start at local midnight (first at "
+            f"{starts[int(off[0])].tz_convert(tz).isoformat()}): the zone changes its clocks. "
+            "Give daily counts in a zone without daylight saving, such as UTC"
+        )
 
 
 def _local_midnight(day: dt.date, tz: str) -> pd.Timestamp:
@@ -472,6 +492,8 @@ def bin_counts(
         )
     first_day = days[0].astype(dt.date)
     end_day = (days[-1] + 1).astype(dt.date)
+    if bin_minutes == _DAY_MINUTES:
+        bin_grid(first_day, end_day, tz=tz, bin_minutes=bin_minutes)  # refuses clock changes
     exposure = _opening_exposure(starts, tz=tz, bin_minutes=bin_minutes, opening=opening)
     closed = np.flatnonzero((exposure == 0) & (counts > 0))
     if closed.size:

@@ -18,7 +18,10 @@ __all__ = ["build_model"]
 
 
 def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
-    """Build the Poisson log-rate model with named dims ``dow``, ``slot``, ``day`` and ``bin``.
+    """Build the log-rate model with named dims ``dow``, ``slot``, ``day`` and ``bin``.
+
+    Counts are Poisson given the rate, or negative binomial (mean ``mu``, variance
+    ``mu + mu**2 / dispersion``) when ``spec.observation == "negbin"``.
 
     Parameters
     ----------
@@ -51,11 +54,11 @@ def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
             dow_sd = pm.HalfNormal("dow_sd", sigma=priors.dow_scale)
             dow_effect = pm.ZeroSumNormal("dow_effect", sigma=dow_sd, dims="dow")
             week = week + dow_effect[:, None]
-        if spec.time_of_day:
+        if spec.has_time_of_day:
             slot_sd = pm.HalfNormal("slot_sd", sigma=priors.slot_scale)
             slot_effect = pm.ZeroSumNormal("slot_effect", sigma=slot_sd, dims="slot")
             week = week + slot_effect[None, :]
-        if spec.interaction:
+        if spec.interaction and spec.has_time_of_day:
             # Shrinks toward the additive weekly shape as interaction_sd -> 0.
             interaction_sd = pm.HalfNormal("interaction_sd", sigma=priors.interaction_scale)
             if spec.centred_interaction:
@@ -103,12 +106,19 @@ def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
                 )
             log_rate = log_rate + latent[feats.day]
 
-        pm.Poisson(
-            "arrivals",
-            mu=pt.exp(log_rate) * data.exposure_hours,
-            observed=data.count,
-            dims="bin",
-        )
+        mean = pt.exp(log_rate) * data.exposure_hours
+        if spec.observation == "negbin":
+            # The prior sits on 1/sqrt(k), the coefficient of variation of the gamma noise, so
+            # its mode at 0 is the Poisson model and the scale reads as "how noisy is a bin".
+            overdispersion = pm.HalfNormal(
+                "overdispersion", sigma=priors.overdispersion_scale
+            )
+            dispersion = pm.Deterministic("dispersion", 1.0 / overdispersion**2)
+            pm.NegativeBinomial(
+                "arrivals", mu=mean, alpha=dispersion, observed=data.count, dims="bin"
+            )
+        else:
+            pm.Poisson("arrivals", mu=mean, observed=data.count, dims="bin")
     return model
 
 

@@ -10,6 +10,7 @@ from __future__ import annotations
 import datetime as dt
 import io
 from dataclasses import dataclass
+from functools import cached_property
 from typing import Any
 
 import numpy as np
@@ -22,6 +23,10 @@ from models.spec import ModelSpec
 __all__ = ["CompactPosterior", "compact_from_fit"]
 
 _ARRAYS = ("week_log_rate", "trend", "holiday_effect", "latent", "latent_rho", "latent_sd")
+#: Future days of latent path simulated once per loaded version (queries beyond extend it).
+_CACHED_FUTURE_DAYS = 401
+#: Arrays only some models have; a store written before they existed simply lacks them.
+_OPTIONAL_ARRAYS = ("dispersion",)
 
 
 @dataclass(frozen=True)
@@ -42,6 +47,9 @@ class CompactPosterior:
     seed
         Seeds the forward simulation of future latent deviations, so a query always gets the same
         answer from the same version.
+    dispersion
+        ``(draw,)`` negative binomial dispersion k (gamma noise shape) for
+        ``spec.observation == "negbin"``; None for a Poisson model.
     """
 
     week_log_rate: np.ndarray
@@ -54,6 +62,7 @@ class CompactPosterior:
     spec: ModelSpec
     opening: OpeningHours | None
     seed: int
+    dispersion: np.ndarray | None = None
 
     @property
     def n_draws(self) -> int:
@@ -70,6 +79,27 @@ class CompactPosterior:
         """Local date after the last history day."""
         return self.calendar.first_day + dt.timedelta(days=self.n_days)
 
+    @cached_property
+    def as_float64(self) -> dict[str, np.ndarray]:
+        """The draws in float64, converted once per loaded version (queries reuse them)."""
+        return {name: np.asarray(getattr(self, name), dtype=np.float64) for name in _ARRAYS}
+
+    def latent_through(self, last_day: int) -> np.ndarray:
+        """Latent deviation per draw for days ``0..last_day``, ``(draw, last_day + 1)``.
+
+        Days after the history are simulated forward from each draw's AR(1) with innovations drawn
+        day by day from a generator seeded by :attr:`seed` (row k = history day n_days + k), so a
+        longer query extends the same path and every query sees the same future.
+        """
+        path = self._latent_path_cache
+        if last_day >= path.shape[1]:
+            path = _extend_latent(self, last_day + 1)
+        return path[:, : last_day + 1]
+
+    @cached_property
+    def _latent_path_cache(self) -> np.ndarray:
+        return _extend_latent(self, self.n_days + _CACHED_FUTURE_DAYS)
+
     def meta(self) -> dict[str, Any]:
         """JSON-ready description (for the manifest)."""
         return {
@@ -84,7 +114,11 @@ class CompactPosterior:
     def to_bytes(self) -> bytes:
         """Serialise the arrays (``.npz``)."""
         buffer = io.BytesIO()
-        np.savez(buffer, **{name: getattr(self, name) for name in _ARRAYS})
+        arrays = {name: getattr(self, name) for name in _ARRAYS}
+        for name in _OPTIONAL_ARRAYS:
+            if getattr(self, name) is not None:
+                arrays[name] = getattr(self, name)
+        np.savez(buffer, **arrays)
         return buffer.getvalue()
 
     @classmethod
@@ -93,12 +127,14 @@ class CompactPosterior:
         try:
             with np.load(io.BytesIO(payload), allow_pickle=False) as npz:
                 arrays = {name: npz[name] for name in _ARRAYS}
+                optional = {name: npz[name] for name in _OPTIONAL_ARRAYS if name in npz.files}
         except (OSError, ValueError, KeyError) as exc:
             raise CorruptArtefact(f"compact draws cannot be read: {exc}") from exc
         spec = ModelSpec.from_dict(meta["spec"])
         opening = meta.get("opening_hours")
         posterior = cls(
             **arrays,
+            **optional,
             calendar=Calendar.from_dict(meta["calendar"], holidays=spec.holidays),
             spec=spec,
             opening=OpeningHours.parse(opening) if opening else None,
@@ -129,6 +165,34 @@ class CompactPosterior:
         for name in _ARRAYS:
             if not np.isfinite(getattr(self, name)).all():
                 raise CorruptArtefact(f"array {name} holds non-finite values")
+        if self.spec.observation == "negbin":
+            if self.dispersion is None or self.dispersion.shape != (d,):
+                found = None if self.dispersion is None else self.dispersion.shape
+                raise CorruptArtefact(
+                    f"a negative binomial posterior needs array dispersion of shape ({d},); "
+                    f"found {found}"
+                )
+            # An infinite dispersion is a Poisson bin, so only NaN, zero and negatives are bad.
+            if not np.all(self.dispersion > 0):
+                raise CorruptArtefact("array dispersion holds values that are not > 0")
+
+
+def _extend_latent(posterior: CompactPosterior, days: int) -> np.ndarray:
+    known = posterior.as_float64["latent"]
+    extra = days - posterior.n_days
+    if extra <= 0:
+        return known
+    if not posterior.spec.latent_daily:
+        return np.concatenate([known, np.zeros((posterior.n_draws, extra))], axis=1)
+    shocks = np.random.default_rng(posterior.seed).standard_normal((extra, posterior.n_draws))
+    rho = posterior.as_float64["latent_rho"]
+    sd = posterior.as_float64["latent_sd"]
+    future = np.empty((posterior.n_draws, extra))
+    state = known[:, -1]
+    for k in range(extra):
+        state = rho * state + sd * shocks[k]
+        future[:, k] = state
+    return np.concatenate([known, future], axis=1)
 
 
 def compact_from_fit(
@@ -163,6 +227,9 @@ def compact_from_fit(
     if week is None:
         raise CorruptArtefact("the fit has no week_log_rate; was it built by models.build?")
     latent = take("latent", ("day",))
+    dispersion = take("dispersion", ()) if spec.observation == "negbin" else None
+    if spec.observation == "negbin" and dispersion is None:
+        raise CorruptArtefact("the negative binomial fit has no dispersion draws")
     return CompactPosterior(
         week_log_rate=week,
         trend=_or(take("trend", ()), zeros),
@@ -174,6 +241,7 @@ def compact_from_fit(
         spec=spec,
         opening=opening,
         seed=seed,
+        dispersion=dispersion,
     )
 
 

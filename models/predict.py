@@ -7,6 +7,15 @@ deviations simulated forward from each draw's AR(1) with a fixed seed, so a quer
 same answer from the same version. The predictive count is the mixture over draws of
 Poisson(Λ_d), summarised exactly by :mod:`models.mixture`.
 
+A negative binomial model (``spec.observation == "negbin"``) is the same Poisson mixture with
+one more factor inside Λ_d: each bin's rate is multiplied by Gamma(k_d, k_d) noise drawn for
+that draw and that bin from a generator seeded by the version seed and the bin's absolute index
+(its UTC start divided by the bin width). A bin therefore gets the same noise in every query, so
+windows, sub-windows and totals stay consistent, and a one-bin window is the mixture over draws
+of the negative binomial law the model was fitted with. (docs/calibration.md gives the
+measurements behind this choice over a per-draw negative binomial with a moment-matched window
+dispersion.)
+
 This module imports numpy, pandas and scipy only: answering a query never loads PyMC.
 """
 
@@ -42,6 +51,10 @@ DEFAULT_LEVELS: tuple[float, ...] = (0.8, 0.95)
 MAX_HORIZON_DAYS = 400
 _BLOCK_BINS = 2048
 _NS_PER_MINUTE = 60 * 10**9
+# Keeps the bin-noise streams apart from the latent forward simulation, which uses the seed alone.
+_NOISE_STREAM = 0x6E6F697365
+# Beyond this dispersion the gamma noise sd (1/sqrt(k)) is below 1e-4: the bin is Poisson.
+_POISSON_DISPERSION = 1e8
 
 
 def parse_instant(text: str | dt.datetime, *, tz: str | None = None) -> pd.Timestamp:
@@ -99,26 +112,6 @@ def split_range(
     starts = pd.date_range(start, end, freq=step, inclusive="left")
     ends = starts[1:].append(pd.DatetimeIndex([end]))
     return starts, ends
-
-
-def _latent_path(posterior: CompactPosterior, last_day: int) -> np.ndarray:
-    """Latent deviation per draw for days 0..last_day; days after the history simulated."""
-    known = posterior.latent.astype(np.float64)
-    extra = last_day + 1 - posterior.n_days
-    if extra <= 0 or not posterior.spec.latent_daily:
-        if extra > 0:
-            known = np.concatenate([known, np.zeros((posterior.n_draws, extra))], axis=1)
-        return known
-    # Innovations drawn day by day (row k = day n_days + k): a longer query extends the same path.
-    shocks = np.random.default_rng(posterior.seed).standard_normal((extra, posterior.n_draws))
-    rho = posterior.latent_rho.astype(np.float64)
-    sd = posterior.latent_sd.astype(np.float64)
-    future = np.empty((posterior.n_draws, extra))
-    state = known[:, -1]
-    for k in range(extra):
-        state = rho * state + sd * shocks[k]
-        future[:, k] = state
-    return np.concatenate([known, future], axis=1)
 
 
 def _check_windows(
@@ -213,7 +206,7 @@ def _integrate_cluster(
         bin_minutes=cal.bin_minutes,
     )
     feats = cal.features(grid)
-    latent = _latent_path(posterior, int(feats.day.max()))
+    latent = posterior.latent_through(int(feats.day.max()))
     open_share = np.ones(len(grid))
     if posterior.opening is not None:
         open_share = posterior.opening.open_fraction(
@@ -227,9 +220,10 @@ def _integrate_cluster(
     within = (points - edges[index]) / bin_ns
     cumulative = np.empty((posterior.n_draws, len(points)))
     offset = np.zeros(posterior.n_draws)
-    week = posterior.week_log_rate.astype(np.float64)
-    trend = posterior.trend.astype(np.float64)[:, None]
-    holiday = posterior.holiday_effect.astype(np.float64)[:, None]
+    draws = posterior.as_float64
+    week = draws["week_log_rate"]
+    trend = draws["trend"][:, None]
+    holiday = draws["holiday_effect"][:, None]
     for b0 in range(0, len(grid), _BLOCK_BINS):
         b1 = min(b0 + _BLOCK_BINS, len(grid))
         block = slice(b0, b1)
@@ -240,6 +234,8 @@ def _integrate_cluster(
             + latent[:, feats.day[block]]
         )
         per_bin = np.exp(log_rate) * (open_share[block] * bin_hours)
+        if posterior.spec.observation == "negbin":
+            per_bin *= _bin_noise(posterior, edges[block] // bin_ns)
         before = offset[:, None] + np.cumsum(per_bin, axis=1) - per_bin
         here = np.flatnonzero((index >= b0) & (index < b1))
         local = index[here] - b0
@@ -247,6 +243,23 @@ def _integrate_cluster(
         offset = offset + per_bin.sum(axis=1)
     n = len(members)
     out[:, members] = cumulative[:, n:] - cumulative[:, :n]
+
+
+def _bin_noise(posterior: CompactPosterior, bin_ids: np.ndarray) -> np.ndarray:
+    """Gamma(k_d, k_d) rate multipliers, shape ``(draw, bin)``, fixed per version and bin."""
+    if posterior.dispersion is None:
+        raise InputError("a negative binomial posterior has no dispersion draws")
+    shape = posterior.dispersion.astype(np.float64)
+    poisson = ~(shape < _POISSON_DISPERSION)
+    shape = np.where(poisson, 1.0, shape)
+    noise = np.empty((posterior.n_draws, len(bin_ids)))
+    for j, bin_id in enumerate(bin_ids.tolist()):
+        # Bins before 1970 have negative ids; SeedSequence wants non-negative integers.
+        entropy = [posterior.seed, _NOISE_STREAM, bin_id % 2**64]
+        rng = np.random.Generator(np.random.PCG64(np.random.SeedSequence(entropy)))
+        noise[:, j] = rng.gamma(shape, 1.0 / shape)
+    noise[poisson] = 1.0
+    return noise
 
 
 @dataclass(frozen=True)

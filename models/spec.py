@@ -21,7 +21,14 @@ from typing import Any
 
 from models.exceptions import InputError
 
-__all__ = ["HolidayCalendar", "ModelSpec", "Priors"]
+__all__ = ["BIN_MINUTES", "OBSERVATIONS", "HolidayCalendar", "ModelSpec", "Priors"]
+
+#: Allowed observation models: ``poisson`` counts given the rate, or ``negbin`` (gamma-Poisson:
+#: each bin's rate is further multiplied by independent Gamma(k, k) noise, k the dispersion).
+OBSERVATIONS: tuple[str, ...] = ("poisson", "negbin")
+#: Allowed bin widths in minutes; 1440 is a whole day (for daily counts, in a zone without
+#: daylight saving, where the time-of-day terms have nothing to describe and are left out).
+BIN_MINUTES: tuple[int, ...] = (15, 30, 60, 1440)
 
 
 @dataclass(frozen=True)
@@ -44,6 +51,9 @@ class Priors:
         Sd of the holiday effect on the log rate.
     latent_scale
         Half-normal prior scale of the daily latent deviation's innovation sd.
+    overdispersion_scale
+        Half-normal prior scale of ``1 / sqrt(dispersion)`` for the negative binomial observation
+        (the coefficient of variation of the per-bin gamma noise; 0 is Poisson).
     """
 
     baseline_sigma: float = 2.0
@@ -54,6 +64,7 @@ class Priors:
     trend_sigma: float = 0.5
     holiday_sigma: float = 1.0
     latent_scale: float = 0.2
+    overdispersion_scale: float = 1.0
 
     def __post_init__(self) -> None:
         for f in fields(self):
@@ -116,11 +127,19 @@ class HolidayCalendar:
 class ModelSpec:
     """Which terms the model has, and their priors.
 
+    ``observation`` chooses how counts scatter around the rate: ``"poisson"`` (the default) or
+    ``"negbin"``, where each bin's rate carries its own Gamma(k, k) noise so a bin's count is
+    negative binomial with variance ``mu + mu**2 / k``; real arrival series are usually
+    overdispersed at the bin level beyond what the daily latent deviation explains.
+    ``bin_minutes=1440`` models daily counts; the time-of-day terms are then left out.
+
     Examples
     --------
     >>> spec = ModelSpec(bin_minutes=30, trend=False)
     >>> ModelSpec.from_dict(spec.to_dict()) == spec
     True
+    >>> ModelSpec(observation="negbin").to_dict()["observation"]
+    'negbin'
     """
 
     bin_minutes: int = 60
@@ -133,10 +152,17 @@ class ModelSpec:
     centred_interaction: bool = False
     centred_latent: bool = False
     priors: Priors = field(default_factory=Priors)
+    observation: str = "poisson"
 
     def __post_init__(self) -> None:
-        if self.bin_minutes not in (15, 30, 60):
-            raise InputError(f"bin_minutes {self.bin_minutes!r} is not one of 15, 30, 60")
+        if self.bin_minutes not in BIN_MINUTES:
+            raise InputError(
+                f"bin_minutes {self.bin_minutes!r} is not one of {', '.join(map(str, BIN_MINUTES))}"
+            )
+        if self.observation not in OBSERVATIONS:
+            raise InputError(
+                f"observation {self.observation!r} is not one of {', '.join(OBSERVATIONS)}"
+            )
         if self.interaction and not (self.day_of_week and self.time_of_day):
             raise InputError("the day-of-week x time-of-day interaction needs both main effects on")
 
@@ -144,6 +170,11 @@ class ModelSpec:
     def slots_per_day(self) -> int:
         """Bins in a 24-hour day."""
         return 24 * 60 // self.bin_minutes
+
+    @property
+    def has_time_of_day(self) -> bool:
+        """Whether the time-of-day terms are in the model (a one-slot day has no shape)."""
+        return self.time_of_day and self.slots_per_day > 1
 
     @classmethod
     def intercept_only(cls, *, bin_minutes: int = 60, priors: Priors | None = None) -> ModelSpec:
