@@ -14,13 +14,13 @@ from pathlib import Path
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 os.environ.setdefault("PYTENSOR_FLAGS", f"compiledir={Path.cwd() / '.cache' / 'pytensor'}")
 
-import numpy as np  # noqa: E402
-from simulated import hourly_history  # noqa: E402
+import numpy as np
+from simulated import hourly_history
 
-from models.build import build_model  # noqa: E402
-from models.design import make_model_data  # noqa: E402
-from models.fit import fit_model  # noqa: E402
-from models.spec import ModelSpec  # noqa: E402
+from models.build import build_model
+from models.design import make_model_data
+from models.fit import fit_model
+from models.spec import ModelSpec
 
 
 def gradient_seconds(model, repeats: int = 2000) -> tuple[float, float]:  # type: ignore[no-untyped-def]
@@ -41,8 +41,10 @@ def gradient_seconds(model, repeats: int = 2000) -> tuple[float, float]:  # type
 
 def main() -> None:
     chains, cores = 4, min(4, os.cpu_count() or 1)
-    print(f"{'weeks':>5} {'bins':>6} {'grad us':>8} {'compile s':>9} {'steps':>8} {'floor s':>8} "
-          f"{'fit s':>7} {'fit/floor':>9} {'r_hat':>6} {'ess':>6} {'div':>4}")
+    print(
+        f"{'weeks':>5} {'bins':>6} {'grad us':>8} {'compile s':>9} {'steps':>8} {'floor s':>8} "
+        f"{'fit s':>7} {'fit/floor':>9} {'r_hat':>6} {'ess':>6} {'div':>4}"
+    )
     for weeks in (26, 52):
         binned = hourly_history(weeks)
         spec = ModelSpec()
@@ -54,12 +56,18 @@ def main() -> None:
         steps = result.timings["leapfrog_steps"]
         floor = grad * steps / min(chains, cores)
         d = result.diagnostics
-        print(f"{weeks:>5} {len(binned.count):>6} {grad * 1e6:>8.0f} {compile_seconds:>9.1f} "
-              f"{steps:>8.0f} {floor:>8.1f} {wall:>7.1f} {wall / floor:>9.2f} {d.max_r_hat:>6.3f} "
-              f"{d.min_ess_bulk:>6.0f} {d.divergences:>4}", flush=True)
-        print(f"      sampling alone {result.timings['sampling_seconds']:.1f} s; "
-              f"{steps / (chains * 2000):.1f} leapfrog steps per iteration; gate "
-              f"{'passed' if d.ok else 'failed: ' + '; '.join(d.problems[:3])}", flush=True)
+        print(
+            f"{weeks:>5} {len(binned.count):>6} {grad * 1e6:>8.0f} {compile_seconds:>9.1f} "
+            f"{steps:>8.0f} {floor:>8.1f} {wall:>7.1f} {wall / floor:>9.2f} {d.max_r_hat:>6.3f} "
+            f"{d.min_ess_bulk:>6.0f} {d.divergences:>4}",
+            flush=True,
+        )
+        print(
+            f"      sampling alone {result.timings['sampling_seconds']:.1f} s; "
+            f"{steps / (chains * 2000):.1f} leapfrog steps per iteration; gate "
+            f"{'passed' if d.ok else 'failed: ' + '; '.join(d.problems[:3])}",
+            flush=True,
+        )
         del result
         np.random.default_rng(0)
 

@@ -8,9 +8,9 @@ from __future__ import annotations
 
 import datetime as dt
 import statistics
+import tempfile
 import time
 from pathlib import Path
-import tempfile
 
 import numpy as np
 import pandas as pd
@@ -64,17 +64,24 @@ def main() -> None:
     many = pd.DatetimeIndex(many_starts), pd.DatetimeIndex(many_starts + pd.Timedelta(hours=3))
     kwargs = {"levels": (0.8, 0.95), "quantiles": (0.05, 0.5, 0.95), "at_least": (10,)}
     print(f"posterior: {post.n_draws} draws, {post.n_days} history days")
-    for label, (s, e), repeats in (("one 3-hour window", one, 200), ("168 hourly windows", week, 20),
-                                   ("10,000 3-hour windows", many, 3)):
+    for label, (s, e), repeats in (
+        ("one 3-hour window", one, 200),
+        ("168 hourly windows", week, 20),
+        ("10,000 3-hour windows", many, 3),
+    ):
         integral = timed(lambda s=s, e=e: expected_counts(post, s, e), repeats)
         total = timed(lambda s=s, e=e: forecast(post, s, e, **kwargs), repeats)
-        print(f"{label:>24}: forecast {total * 1e3:9.2f} ms (window integrals {integral * 1e3:8.2f} ms, "
-              f"mixture summaries {max(total - integral, 0) * 1e3:8.2f} ms)")
+        print(
+            f"{label:>24}: forecast {total * 1e3:9.2f} ms (window integrals {integral * 1e3:8.2f} ms, "
+            f"mixture summaries {max(total - integral, 0) * 1e3:8.2f} ms)"
+        )
     with tempfile.TemporaryDirectory() as folder:
         stored = FileStore(folder).publish("bench", post, manifest={})
         size = (Path(folder) / "bench" / "versions" / stored.version / "draws.npz").stat().st_size
-        print(f"compact draws per series (float32, {post.n_draws} draws, {post.n_days} days): "
-              f"{size / 1e6:.2f} MB")
+        print(
+            f"compact draws per series (float32, {post.n_draws} draws, {post.n_days} days): "
+            f"{size / 1e6:.2f} MB"
+        )
 
 
 if __name__ == "__main__":

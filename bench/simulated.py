@@ -11,7 +11,9 @@ from models.binning import BinnedSeries, bin_grid, local_features
 TZ = "America/Chicago"
 
 
-def hourly_history(weeks: int, *, seed: int = 1, first_day: dt.date = dt.date(2025, 1, 6)) -> BinnedSeries:
+def hourly_history(
+    weeks: int, *, seed: int = 1, first_day: dt.date = dt.date(2025, 1, 6)
+) -> BinnedSeries:
     """``weeks`` of hourly counts: weekly shape, a slow trend and an AR(1) daily deviation."""
     rng = np.random.default_rng(seed)
     end = first_day + dt.timedelta(weeks=weeks)

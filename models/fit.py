@@ -85,8 +85,9 @@ def check_diagnostics(
     """
     thresholds = thresholds or GateThresholds()
     posterior = idata["posterior"]
+    # Deterministics are functions of the sampled variables: checking those is enough.
     names = var_names or [
-        v for v in posterior.data_vars if v not in ("week_log_rate", "interaction", "latent")
+        str(v) for v in posterior.data_vars if v not in ("week_log_rate", "interaction", "latent")
     ]
     chains = int(posterior.sizes["chain"])
     draws = int(posterior.sizes["draw"])

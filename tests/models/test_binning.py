@@ -189,7 +189,7 @@ class TestOpeningHours:
 class TestMisc:
     def test_bin_width_labels(self) -> None:
         assert parse_bin_width("15min") == 15
-        with pytest.raises(InputError, match="'2h'.*15min, 30min, 1h"):
+        with pytest.raises(InputError, match=r"'2h'.*15min, 30min, 1h"):
             parse_bin_width("2h")
 
     def test_read_table_by_suffix(self, tmp_path) -> None:  # type: ignore[no-untyped-def]

@@ -66,12 +66,17 @@ class TestConjugateGammaPoisson:
         # Hoff 2009 sec. 3.2 [R]: predictive NB(219, 112/113) pmf at 0..3 = 0.1427 0.2767 0.2693 0.1756.
         fit = conjugate_fit
         posterior = compact_from_fit(
-            fit.idata["posterior"], calendar=fit.data.calendar, spec=fit.spec,
-            n_days=fit.data.n_days, opening=None, seed=1,
+            fit.idata["posterior"],
+            calendar=fit.data.calendar,
+            spec=fit.spec,
+            n_days=fit.data.n_days,
+            opening=None,
+            seed=1,
         )
         start = pd.Timestamp("2026-06-08T10:00", tz=TZ)
-        lam = expected_counts(posterior, pd.DatetimeIndex([start]),
-                              pd.DatetimeIndex([start + pd.Timedelta(hours=1)]))
+        lam = expected_counts(
+            posterior, pd.DatetimeIndex([start]), pd.DatetimeIndex([start + pd.Timedelta(hours=1)])
+        )
         cdf = np.array([mixture_cdf(lam, np.array([k]))[0] for k in range(-1, 4)])
         assert np.diff(cdf) == pytest.approx([0.1427, 0.2767, 0.2693, 0.1756], abs=0.006)
 
@@ -95,8 +100,15 @@ def recovery_fit():  # type: ignore[no-untyped-def]
     counts = rng.poisson(np.exp(true_week[dow, slot] + latent[day_index]))
     binned = hourly_series(counts, first, days)
     spec = ModelSpec(trend=False)
-    fit = fit_model(make_model_data(binned, spec), spec, draws=400, tune=400, chains=2, seed=3,
-                    progressbar=False)
+    fit = fit_model(
+        make_model_data(binned, spec),
+        spec,
+        draws=400,
+        tune=400,
+        chains=2,
+        seed=3,
+        progressbar=False,
+    )
     return fit, true_week, binned
 
 
@@ -125,11 +137,15 @@ class TestRecovery:
         glm_week = pd.Series(fitted.to_numpy()).groupby([dow, slot]).mean().unstack().to_numpy()
         ours = fit.idata["posterior"]["week_log_rate"].mean(("chain", "draw")).to_numpy()
         # Compare day-of-week profiles and hour-of-day profiles (margins over the other factor).
-        np.testing.assert_allclose(ours.mean(axis=1) - ours.mean(), glm_week.mean(axis=1) - glm_week.mean(),
-                                   atol=0.03)
+        np.testing.assert_allclose(
+            ours.mean(axis=1) - ours.mean(), glm_week.mean(axis=1) - glm_week.mean(), atol=0.03
+        )
         busy = TRUE_SLOT > 0  # data-rich daytime hours
-        np.testing.assert_allclose((ours.mean(axis=0) - ours.mean())[busy],
-                                   (glm_week.mean(axis=0) - glm_week.mean())[busy], atol=0.06)
+        np.testing.assert_allclose(
+            (ours.mean(axis=0) - ours.mean())[busy],
+            (glm_week.mean(axis=0) - glm_week.mean())[busy],
+            atol=0.06,
+        )
 
     def test_gate_reports_problems_by_name(self, recovery_fit) -> None:
         fit, _, _ = recovery_fit
@@ -141,10 +157,20 @@ class TestRecovery:
         _, _, binned = recovery_fit
         store = MemoryStore()
         with pytest.raises(FitRejected, match="diagnostics gate"):
-            fit_and_publish(binned, ModelSpec(trend=False), store=store, series="sim",
-                            options=FitOptions(draws=400, tune=400, chains=2, seed=3,
-                                               progressbar=False,
-                                               thresholds=GateThresholds(min_ess_bulk=1e6)))
+            fit_and_publish(
+                binned,
+                ModelSpec(trend=False),
+                store=store,
+                series="sim",
+                options=FitOptions(
+                    draws=400,
+                    tune=400,
+                    chains=2,
+                    seed=3,
+                    progressbar=False,
+                    thresholds=GateThresholds(min_ess_bulk=1e6),
+                ),
+            )
         assert store.series() == []
 
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import datetime as dt
+import itertools
 from zoneinfo import ZoneInfo
 
 import numpy as np
@@ -31,7 +32,7 @@ def reference_integral(table: np.ndarray, start: str, end: str, tz: str = CHICAG
 
     cuts = np.unique(np.concatenate([[a, b], np.arange(np.ceil(a / 3600) * 3600, b, 3600)]))
     return sum(
-        integrate.quad(rate_per_second, lo, hi, limit=200)[0] for lo, hi in zip(cuts[:-1], cuts[1:])
+        integrate.quad(rate_per_second, lo, hi, limit=200)[0] for lo, hi in itertools.pairwise(cuts)
     )
 
 
@@ -184,7 +185,7 @@ class TestForecast:
 
 class TestWindowErrors:
     def test_reversed_window(self, weekly_table) -> None:
-        with pytest.raises(WindowError, match="window 0: end .* not after start"):
+        with pytest.raises(WindowError, match=r"window 0: end .* not after start"):
             expected_counts(
                 synthetic_posterior(weekly_table),
                 *windows(("2026-03-02T10:00-06:00", "2026-03-02T09:00-06:00")),
@@ -221,4 +222,4 @@ class TestWindowErrors:
     def test_split_range_last_window_may_be_short(self) -> None:
         a = parse_instant("2026-03-02T09:00", tz=CHICAGO)
         starts, ends = split_range(a, a + pd.Timedelta(minutes=70), parse_step("30min"))
-        assert [(e - s).seconds // 60 for s, e in zip(starts, ends)] == [30, 30, 10]
+        assert [(e - s).seconds // 60 for s, e in zip(starts, ends, strict=True)] == [30, 30, 10]

@@ -41,7 +41,7 @@ class TestBothStores:
 
     def test_unknown_series_lists_the_known_ones(self, store, posterior) -> None:
         store.publish("desk-a", posterior, manifest={})
-        with pytest.raises(SeriesNotFound, match="'desk-b'.*desk-a"):
+        with pytest.raises(SeriesNotFound, match=r"'desk-b'.*desk-a"):
             store.load("desk-b")
 
     @pytest.mark.parametrize("name", ["../etc", "Desk", "", "a/b", "x" * 65])
