@@ -7,6 +7,8 @@ non-centred form), each block with its own learned scale so it is partially pool
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
 import pymc as pm
 import pytensor.tensor as pt
@@ -14,7 +16,10 @@ import pytensor.tensor as pt
 from models.design import ModelData
 from models.spec import ModelSpec
 
-__all__ = ["build_model"]
+if TYPE_CHECKING:
+    from models.joint import JointData
+
+__all__ = ["build_joint_model", "build_model"]
 
 
 def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
@@ -110,9 +115,7 @@ def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
         if spec.observation == "negbin":
             # The prior sits on 1/sqrt(k), the coefficient of variation of the gamma noise, so
             # its mode at 0 is the Poisson model and the scale reads as "how noisy is a bin".
-            overdispersion = pm.HalfNormal(
-                "overdispersion", sigma=priors.overdispersion_scale
-            )
+            overdispersion = pm.HalfNormal("overdispersion", sigma=priors.overdispersion_scale)
             dispersion = pm.Deterministic("dispersion", 1.0 / overdispersion**2)
             pm.NegativeBinomial(
                 "arrivals", mu=mean, alpha=dispersion, observed=data.count, dims="bin"
@@ -136,3 +139,80 @@ def _ar1_from_innovations(
     powers = pt.switch(lower, rho ** np.where(lower, lag, 0), 0.0)
     scale = pt.set_subtensor(pt.ones(n_days)[0], 1.0 / pt.sqrt(1.0 - rho**2))
     return sd * pt.dot(powers * scale[None, :], innovation)
+
+
+def build_joint_model(data: JointData, spec: ModelSpec) -> pm.Model:
+    """Build the multi-series model (see :mod:`models.joint`) with dims ``series``, ``dow``,
+    ``slot``, ``day`` and ``bin``.
+
+    Variables carry the single-series names with a leading ``series`` dim, so selecting one series
+    from the posterior gives exactly the layout of :func:`build_model`.
+    """
+    members = data.members
+    n_series = len(members)
+    coords = {
+        "series": list(data.names),
+        **members[0].coords,
+        "bin": np.arange(sum(len(m.count) for m in members)),
+    }
+    series_of_bin = np.concatenate([np.full(len(m.count), s) for s, m in enumerate(members)])
+    dow = np.concatenate([m.features.dow for m in members])
+    slot = np.concatenate([m.features.slot for m in members])
+    day = np.concatenate([m.features.day for m in members])
+    years = np.concatenate([m.features.years for m in members])
+    holiday = np.concatenate([m.features.holiday for m in members])
+    exposure = np.concatenate([m.exposure_hours for m in members])
+    count = np.concatenate([m.count for m in members])
+    priors = spec.priors
+    with pm.Model(coords=coords) as model:
+        level = np.log(np.maximum([m.mean_rate for m in members], 1e-3))
+        baseline = pm.Normal("baseline", mu=level, sigma=priors.baseline_sigma, dims="series")
+        # The shared weekly shape.
+        dow_sd = pm.HalfNormal("dow_sd", sigma=priors.dow_scale)
+        slot_sd = pm.HalfNormal("slot_sd", sigma=priors.slot_scale)
+        shared = (
+            pm.ZeroSumNormal("dow_effect", sigma=dow_sd, dims="dow")[:, None]
+            + pm.ZeroSumNormal("slot_effect", sigma=slot_sd, dims="slot")[None, :]
+        )
+        if spec.interaction:
+            interaction_sd = pm.HalfNormal("interaction_sd", sigma=priors.interaction_scale)
+            raw = pm.ZeroSumNormal(
+                "interaction_raw", sigma=1.0, n_zerosum_axes=2, dims=("dow", "slot")
+            )
+            shared = shared + interaction_sd * raw
+        # Series-level deviations from it, each block with its own per-series scale (non-centred:
+        # a young series has little data behind its deviations).
+        main_sd = pm.HalfNormal("deviation_main_sd", sigma=priors.dow_scale, dims="series")
+        cell_sd = pm.HalfNormal("deviation_cell_sd", sigma=priors.interaction_scale, dims="series")
+        dev_dow = pm.ZeroSumNormal("deviation_dow_raw", sigma=1.0, dims=("series", "dow"))
+        dev_slot = pm.ZeroSumNormal("deviation_slot_raw", sigma=1.0, dims=("series", "slot"))
+        dev_cell = pm.ZeroSumNormal(
+            "deviation_cell_raw", sigma=1.0, n_zerosum_axes=2, dims=("series", "dow", "slot")
+        )
+        deviation = main_sd[:, None, None] * (dev_dow[:, :, None] + dev_slot[:, None, :]) + (
+            cell_sd[:, None, None] * dev_cell
+        )
+        week_log_rate = pm.Deterministic(
+            "week_log_rate",
+            baseline[:, None, None] + shared[None, :, :] + deviation,
+            dims=("series", "dow", "slot"),
+        )
+        log_rate = week_log_rate[series_of_bin, dow, slot]
+        if spec.trend:
+            trend = pm.Normal("trend", 0.0, priors.trend_sigma, dims="series")
+            log_rate = log_rate + trend[series_of_bin] * years
+        if spec.holidays is not None:
+            holiday_effect = pm.Normal("holiday_effect", 0.0, priors.holiday_sigma, dims="series")
+            log_rate = log_rate + holiday_effect[series_of_bin] * holiday
+        if spec.latent_daily:
+            rho = pm.Beta("latent_rho", alpha=3.0, beta=2.0, dims="series")
+            latent_sd = pm.HalfNormal("latent_sd", sigma=priors.latent_scale, dims="series")
+            innovation = pm.Normal("latent_innovation", 0.0, 1.0, dims=("series", "day"))
+            paths = [
+                _ar1_from_innovations(innovation[s], rho[s], latent_sd[s], data.n_days)
+                for s in range(n_series)
+            ]
+            latent = pm.Deterministic("latent", pt.stack(paths), dims=("series", "day"))
+            log_rate = log_rate + latent[series_of_bin, day]
+        pm.Poisson("arrivals", mu=pt.exp(log_rate) * exposure, observed=count, dims="bin")
+    return model

@@ -154,6 +154,55 @@ def fit_model(
     """
     from models.build import build_model  # keeps PyMC out of the query path's imports
 
+    started = time.perf_counter()
+    model = build_model(data, spec)
+    build_seconds = time.perf_counter() - started
+    idata, timings = sample_model(
+        model,
+        draws=draws,
+        tune=tune,
+        chains=chains,
+        cores=cores,
+        seed=seed,
+        sampler=sampler,
+        backend=backend,
+        target_accept=target_accept,
+        progressbar=progressbar,
+    )
+    timings["build_seconds"] = build_seconds
+    diagnostics = check_diagnostics(idata, thresholds=thresholds)
+    diagnostics = Diagnostics(
+        **{**diagnostics.__dict__, "sampling_seconds": timings["sampling_seconds"]}
+    )
+    return FitResult(
+        idata=idata,
+        diagnostics=diagnostics,
+        spec=spec,
+        data=data,
+        seed=seed,
+        sampler=sampler,
+        timings=timings,
+    )
+
+
+def sample_model(
+    model: Any,
+    *,
+    draws: int,
+    tune: int,
+    chains: int,
+    seed: int,
+    cores: int | None = None,
+    sampler: Sampler = "pymc",
+    backend: Backend = "numba",
+    target_accept: float = 0.9,
+    progressbar: bool = True,
+) -> tuple[az.InferenceData, dict[str, float]]:
+    """Run NUTS on a built PyMC model; returns the inference data (warm-up dropped) and timings."""
+    import os
+
+    import pymc as pm
+
     for name, value, low in (("draws", draws, 10), ("tune", tune, 0), ("chains", chains, 1)):
         if not isinstance(value, int) or value < low:
             raise InputError(f"{name}={value!r} must be an integer >= {low}")
@@ -161,14 +210,7 @@ def fit_model(
         raise InputError(f"sampler {sampler!r} is not one of 'pymc', 'nutpie'")
     if backend not in ("numba", "c"):
         raise InputError(f"backend {backend!r} is not one of 'numba', 'c'")
-    import os
-
-    import pymc as pm
-
     cores = cores or min(chains, os.cpu_count() or 1)
-    started = time.perf_counter()
-    model = build_model(data, spec)
-    timings: dict[str, float] = {"build_seconds": time.perf_counter() - started}
     started = time.perf_counter()
     with model:
         if sampler == "nutpie":
@@ -194,24 +236,14 @@ def fit_model(
                 compile_kwargs={"mode": "NUMBA"} if backend == "numba" else None,
                 discard_tuned_samples=False,
             )
-    timings["sampling_seconds"] = time.perf_counter() - started
-    timings["leapfrog_steps"] = float(_leapfrog_steps(idata))
+    timings = {
+        "sampling_seconds": time.perf_counter() - started,
+        "leapfrog_steps": float(_leapfrog_steps(idata)),
+    }
     for group in ("warmup_posterior", "warmup_sample_stats"):
         if group in idata.groups():
             del idata[group]
-    diagnostics = check_diagnostics(idata, thresholds=thresholds)
-    diagnostics = Diagnostics(
-        **{**diagnostics.__dict__, "sampling_seconds": timings["sampling_seconds"]}
-    )
-    return FitResult(
-        idata=idata,
-        diagnostics=diagnostics,
-        spec=spec,
-        data=data,
-        seed=seed,
-        sampler=sampler,
-        timings=timings,
-    )
+    return idata, timings
 
 
 def _leapfrog_steps(idata: az.InferenceData) -> int:

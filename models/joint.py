@@ -1,0 +1,165 @@
+"""Several related series fitted together (queues of one site, sites of one organisation).
+
+The series share one day-of-week x time-of-day shape; each series adds its own day-of-week,
+time-of-day and interaction deviations with its own scales, its own level, trend, holiday effect
+and latent daily path. A series with a few weeks of history so borrows the weekly shape of its
+siblings, while a series with plenty of data keeps its own. After the joint fit every series gets
+an ordinary :class:`~models.posterior.CompactPosterior`, so storing and forecasting are unchanged.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from models.binning import BinnedSeries, OpeningHours
+from models.design import ModelData, make_model_data
+from models.exceptions import FitRejected, InputError
+from models.fit import Diagnostics, check_diagnostics, sample_model
+from models.pipeline import FitOptions
+from models.posterior import CompactPosterior, compact_from_fit
+from models.spec import ModelSpec
+from models.store import PosteriorStore, StoredVersion, check_series_name
+
+__all__ = [
+    "JointData",
+    "JointFit",
+    "fit_joint",
+    "joint_posteriors",
+    "make_joint_data",
+    "publish_joint",
+]
+
+
+@dataclass(frozen=True)
+class JointData:
+    """Per-series model data laid on one common calendar (same zone, bin width and day index)."""
+
+    names: tuple[str, ...]
+    members: tuple[ModelData, ...]
+
+    @property
+    def calendar(self) -> Any:
+        """The shared calendar."""
+        return self.members[0].calendar
+
+    @property
+    def n_days(self) -> int:
+        """Days in the common calendar."""
+        return self.members[0].n_days
+
+
+def make_joint_data(histories: dict[str, BinnedSeries], spec: ModelSpec) -> JointData:
+    """Put every series on the union of their calendars.
+
+    Raises
+    ------
+    InputError
+        If fewer than two series are given, or they differ in zone or bin width.
+    """
+    if len(histories) < 2:
+        raise InputError(f"a joint fit needs at least two series; got {len(histories)}")
+    names = tuple(check_series_name(n) for n in histories)
+    zones = {h.tz for h in histories.values()}
+    widths = {h.bin_minutes for h in histories.values()}
+    if len(zones) > 1 or len(widths) > 1:
+        raise InputError(
+            f"series fitted jointly must share one zone and bin width; got zones {sorted(zones)} "
+            f"and widths {sorted(widths)} minutes"
+        )
+    first = min(h.first_day for h in histories.values())
+    end = max(h.end_day for h in histories.values())
+    members = tuple(
+        make_model_data(dataclasses.replace(h, first_day=first, end_day=end), spec)
+        for h in histories.values()
+    )
+    return JointData(names=names, members=members)
+
+
+@dataclass(frozen=True)
+class JointFit:
+    """A joint fit: the inference data (with a ``series`` dim) and its diagnostics."""
+
+    idata: Any
+    diagnostics: Diagnostics
+    data: JointData
+    spec: ModelSpec
+    seed: int
+    timings: dict[str, float]
+
+
+def fit_joint(data: JointData, spec: ModelSpec, *, options: FitOptions | None = None) -> JointFit:
+    """Fit the joint model with NUTS (PyMC, numba backend) and run the diagnostics gate."""
+    from models.build import build_joint_model
+
+    options = options or FitOptions()
+    idata, timings = sample_model(
+        build_joint_model(data, spec),
+        draws=options.draws,
+        tune=options.tune,
+        chains=options.chains,
+        seed=options.seed,
+        sampler=options.sampler,
+        target_accept=options.target_accept,
+        progressbar=options.progressbar,
+    )
+    diagnostics = check_diagnostics(idata, thresholds=options.thresholds)
+    return JointFit(idata, diagnostics, data, spec, options.seed, timings)
+
+
+def joint_posteriors(
+    fit: JointFit,
+    *,
+    openings: dict[str, OpeningHours | None] | None = None,
+    max_draws: int | None = 2000,
+) -> dict[str, CompactPosterior]:
+    """One compact posterior per series, each with the shared shape folded into its weekly rates."""
+    out = {}
+    for name, member in zip(fit.data.names, fit.data.members, strict=True):
+        out[name] = compact_from_fit(
+            fit.idata["posterior"].sel(series=name),
+            calendar=member.calendar,
+            spec=fit.spec,
+            n_days=member.n_days,
+            opening=(openings or {}).get(name),
+            seed=fit.seed,
+            max_draws=max_draws,
+        )
+    return out
+
+
+def publish_joint(
+    fit: JointFit,
+    store: PosteriorStore,
+    *,
+    openings: dict[str, OpeningHours | None] | None = None,
+    force: bool = False,
+    max_draws: int | None = 2000,
+) -> dict[str, StoredVersion]:
+    """Publish every series of a joint fit (all or none: the gate is checked first)."""
+    if not fit.diagnostics.ok and not force:
+        raise FitRejected(
+            f"joint fit of {', '.join(fit.data.names)} failed the diagnostics gate; nothing published",
+            list(fit.diagnostics.problems),
+        )
+    posteriors = joint_posteriors(fit, openings=openings, max_draws=max_draws)
+    published = {}
+    for name, posterior in posteriors.items():
+        member = fit.data.members[fit.data.names.index(name)]
+        manifest = {
+            "data": {
+                "first_day": member.calendar.first_day.isoformat(),
+                "end_day": member.end_day.isoformat(),
+                "tz": member.calendar.tz,
+                "bin_minutes": member.calendar.bin_minutes,
+                "observed_bins": int(len(member.count)),
+                "arrivals": int(np.sum(member.count)),
+            },
+            "fit": {"joint_with": [n for n in fit.data.names if n != name], **fit.timings},
+            "diagnostics": fit.diagnostics.to_dict(),
+        }
+        published[name] = store.publish(name, posterior, manifest=manifest)
+    return published
