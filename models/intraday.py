@@ -1,0 +1,427 @@
+"""Intraday update: revise today's and later days' forecast from today's counts so far.
+
+Model
+-----
+For draw ``d`` the expected count in a window of day ``t`` is ``mu_d(window) exp(z_t)``, with
+``mu_d`` the draw's rate without the daily latent deviation and ``z`` the AR(1) of
+:mod:`models.posterior`: ``z_t = rho_d z_{t-1} + sd_d eps``. Today lies ``k >= 1`` days after the
+last history day, so before seeing today ``z_t ~ N(m_d, v_d)`` with ``m_d = rho_d^k z_last`` and
+``v_d = sd_d^2 (1 + rho_d^2 + ... + rho_d^(2(k-1)))``.
+
+Today's observed windows ``i`` (counts ``y_i``, expected ``mu_di exp(z)`` each) give the likelihood
+``prod_i Poisson(y_i; mu_di e^z)``, which depends on ``z`` only through ``Y = sum y_i`` and
+``M_d = sum mu_di``: ``exp(Y z - M_d e^z)``. The exact update of the pair (draw, z) is then
+
+1. weight each draw by its marginal likelihood
+   ``p(y | d) = prod_i mu_di^y_i / y_i! x integral N(z; m_d, v_d) exp(Y z - M_d e^z) dz``
+   (the integral on the grid of step 2), and draw an equal-weight set by systematic resampling
+   (Kitagawa 1996); the effective sample size ``(sum w)^2 / sum w^2`` says how much the draws
+   were thinned. When every draw has the same weight the set is kept as it is;
+2. per kept draw, sample ``z`` from its exact one-dimensional conditional
+   ``N(z; m_d, v_d) exp(Y z - M_d e^z)`` (log-concave) by inverse CDF on a fine grid around its
+   mode (1025 points, the trapezoid CDF, widened until the density at both ends is below
+   ``e^-40`` of the mode);
+3. days after today continue the AR(1) from the sampled ``z`` with seeded innovations.
+
+Without a latent term (or a draw with ``sd = 0``) step 2 is void and step 1 alone is the update:
+importance weights over draws with systematic resampling. The result is a set of ``(draw,
+window)`` expected counts with equal weights, to summarise with :func:`models.mixture.summarise`.
+
+For a series fitted with negative binomial bins, ``mu_d`` carries the fixed per-bin gamma noise of
+:func:`models.predict.expected_counts`; that noise is not itself updated by today's counts, so the
+update is then approximate (exact for Poisson series).
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import math
+from dataclasses import dataclass, replace
+
+import numpy as np
+import numpy.typing as npt
+import pandas as pd
+from scipy import special
+
+from models.exceptions import CountError, InputError, WindowError
+from models.posterior import CompactPosterior
+from models.predict import MAX_HORIZON_DAYS, expected_counts
+
+__all__ = ["IntradayUpdate", "update_forecast"]
+
+FloatArray = npt.NDArray[np.float64]
+IntArray = npt.NDArray[np.int64]
+
+_GRID_POINTS = 1025
+# A grid end is far enough out once the log density there is this far below the mode.
+_LOG_DROP = 40.0
+_DRAW_BLOCK = 512
+_MAX_WIDENINGS = 12
+
+
+@dataclass(frozen=True)
+class IntradayUpdate:
+    """Updated expected counts and what the update did.
+
+    Attributes
+    ----------
+    lam
+        Updated expected count per (draw, window), equal weights.
+    day
+        The local date whose counts were used.
+    observed_total
+        Arrivals observed today.
+    expected_before
+        Predictive mean of the observed total before the update.
+    draw_index
+        Posterior draw behind each row of ``lam`` (after resampling).
+    effective_sample_size
+        ``(sum w)^2 / sum w^2`` of the draw weights (equals the number of draws when the counts
+        say nothing to tell the draws apart).
+    latent
+        Today's latent deviation per row after the update, or ``None`` without a latent term.
+    """
+
+    lam: FloatArray
+    day: dt.date
+    observed_total: int
+    expected_before: float
+    draw_index: IntArray
+    effective_sample_size: float
+    latent: FloatArray | None
+
+
+# --------------------------------------------------------------------------- inputs
+
+
+def _local_day(stamps: pd.DatetimeIndex, tz: str) -> np.ndarray:
+    return np.asarray(stamps.tz_convert(tz).date)
+
+
+def _midnight(day: dt.date, tz: str) -> pd.Timestamp:
+    # As models.binning lays days: a midnight that does not exist moves forward.
+    naive = pd.DatetimeIndex([pd.Timestamp(day)])
+    return naive.tz_localize(tz, nonexistent="shift_forward", ambiguous=True)[0]
+
+
+def _check_observed(
+    posterior: CompactPosterior,
+    starts: pd.DatetimeIndex,
+    ends: pd.DatetimeIndex,
+    counts: npt.ArrayLike,
+) -> tuple[IntArray, dt.date]:
+    tz = posterior.calendar.tz
+    if len(starts) == 0:
+        raise InputError("no observed windows; give at least one window of today with its count")
+    if len(starts) != len(ends):
+        raise WindowError(f"{len(starts)} observed window starts but {len(ends)} ends")
+    if starts.tz is None or ends.tz is None:
+        raise WindowError("observed window times must carry a UTC offset or zone")
+    values = np.asarray(counts, dtype=np.float64)
+    if values.shape != (len(starts),):
+        raise CountError(
+            f"{values.size} observed counts for {len(starts)} observed windows; give one each"
+        )
+    bad = np.flatnonzero(~np.isfinite(values) | (values < 0) | (values != np.round(values)))
+    if bad.size:
+        i = int(bad[0])
+        raise CountError(f"observed count {i} is {values[i]!r}; allowed: whole numbers >= 0")
+    s_ns, e_ns = starts.as_unit("ns").asi8, ends.as_unit("ns").asi8
+    reversed_ = np.flatnonzero(e_ns <= s_ns)
+    if reversed_.size:
+        i = int(reversed_[0])
+        raise WindowError(
+            f"observed window {i}: end {ends[i].isoformat()} is not after start "
+            f"{starts[i].isoformat()}"
+        )
+    order = np.argsort(s_ns)
+    if np.any(s_ns[order][1:] < e_ns[order][:-1]):
+        raise WindowError("observed windows overlap; each arrival must be counted once")
+    first_days = _local_day(starts, tz)
+    last_days = _local_day(ends - pd.Timedelta(1, "ns"), tz)
+    days = set(first_days) | set(last_days)
+    if len(days) != 1:
+        listing = ", ".join(sorted(str(d) for d in days))
+        raise WindowError(
+            f"observed windows span several local days ({listing} in {tz}); the update uses one "
+            "day's counts (today's)"
+        )
+    today: dt.date = first_days[0]
+    if today < posterior.history_end:
+        raise WindowError(
+            f"observed day {today} is inside the fitted history (which ends before "
+            f"{posterior.history_end}); its counts are already in the fit"
+        )
+    return values.astype(np.int64), today
+
+
+# --------------------------------------------------------------------------- pieces by day
+
+
+def _pieces_by_day(
+    starts: pd.DatetimeIndex, ends: pd.DatetimeIndex, tz: str
+) -> tuple[pd.DatetimeIndex, pd.DatetimeIndex, IntArray, np.ndarray]:
+    """Cut windows at local midnights: piece starts, ends, owning window and local date."""
+    piece_starts: list[pd.Timestamp] = []
+    piece_ends: list[pd.Timestamp] = []
+    owner: list[int] = []
+    dates: list[dt.date] = []
+    first = _local_day(starts, tz)
+    last = _local_day(ends - pd.Timedelta(1, "ns"), tz)
+    for i in range(len(starts)):
+        day = first[i]
+        start = starts[i]
+        while day < last[i]:
+            cut = _midnight(day + dt.timedelta(days=1), tz)
+            piece_starts.append(start)
+            piece_ends.append(cut)
+            owner.append(i)
+            dates.append(day)
+            start, day = cut, day + dt.timedelta(days=1)
+        piece_starts.append(start)
+        piece_ends.append(ends[i])
+        owner.append(i)
+        dates.append(day)
+    return (
+        pd.DatetimeIndex(piece_starts).tz_convert("UTC"),
+        pd.DatetimeIndex(piece_ends).tz_convert("UTC"),
+        np.asarray(owner, dtype=np.int64),
+        np.asarray(dates, dtype="datetime64[D]"),
+    )
+
+
+def _without_latent(posterior: CompactPosterior) -> CompactPosterior:
+    """The same posterior with every daily deviation at zero: the ``mu_d`` of the notes."""
+    return replace(
+        posterior,
+        latent=np.zeros_like(posterior.latent),
+        spec=replace(posterior.spec, latent_daily=False),
+    )
+
+
+# --------------------------------------------------------------------------- the 1-D update
+
+
+def _log_density(
+    z: FloatArray, m: FloatArray, v: FloatArray, total: int, mass: FloatArray
+) -> FloatArray:
+    """``log N(z; m, v) + Y z - M e^z`` (v > 0), broadcasting ``m, v, mass`` as columns."""
+    return -0.5 * (z - m) ** 2 / v - 0.5 * np.log(2.0 * math.pi * v) + total * z - mass * np.exp(z)
+
+
+def _mode(m: FloatArray, v: FloatArray, total: int, mass: FloatArray) -> FloatArray:
+    """Root of ``g(z) = (z - m) / v + M e^z - Y``, increasing and convex in ``z``.
+
+    Newton's method started right of the root of a convex increasing function moves down to it
+    without overshooting. The start ``min(m + v Y, max(m, log(Y / M)))`` is right of the root.
+    """
+    with np.errstate(divide="ignore"):
+        log_ratio = np.log(total) - np.log(mass) if total > 0 else np.full(m.shape, -np.inf)
+    z = np.minimum(m + v * total, np.maximum(m, log_ratio))
+    for _ in range(200):
+        e = mass * np.exp(z)
+        step = ((z - m) / v + e - total) / (1.0 / v + e)
+        z = z - step
+        if np.all(np.abs(step) <= 1e-12 * np.maximum(1.0, np.abs(z))):
+            break
+    return z
+
+
+def _conditional(
+    m: FloatArray, v: FloatArray, total: int, mass: FloatArray
+) -> tuple[FloatArray, FloatArray, FloatArray]:
+    """Grid, CDF on it, and log normaliser of each draw's conditional of ``z`` (v > 0)."""
+    mode = _mode(m, v, total, mass)
+    top = _log_density(mode, m, v, total, mass)
+    spread = 1.0 / np.sqrt(1.0 / v + mass * np.exp(mode))  # Laplace scale at the mode
+    left, right = 12.0 * spread, 12.0 * spread
+    for _ in range(_MAX_WIDENINGS):
+        short_left = top - _log_density(mode - left, m, v, total, mass) < _LOG_DROP
+        short_right = top - _log_density(mode + right, m, v, total, mass) < _LOG_DROP
+        if not (short_left.any() or short_right.any()):
+            break
+        left = np.where(short_left, 2.0 * left, left)
+        right = np.where(short_right, 2.0 * right, right)
+    u = np.linspace(0.0, 1.0, _GRID_POINTS)
+    z = (mode - left)[:, None] + (left + right)[:, None] * u[None, :]
+    density = np.exp(_log_density(z, m[:, None], v[:, None], total, mass[:, None]) - top[:, None])
+    dz = (left + right) / (_GRID_POINTS - 1)
+    cells = 0.5 * (density[:, 1:] + density[:, :-1]) * dz[:, None]
+    cdf = np.concatenate([np.zeros((z.shape[0], 1)), np.cumsum(cells, axis=1)], axis=1)
+    area = cdf[:, -1]
+    return z, cdf / area[:, None], top + np.log(area)
+
+
+def _sample_from(z: FloatArray, cdf: FloatArray, u: FloatArray) -> FloatArray:
+    """Inverse CDF, linear within each grid cell."""
+    cell = np.minimum((cdf < u[:, None]).sum(axis=1) - 1, z.shape[1] - 2)
+    cell = np.maximum(cell, 0)
+    rows = np.arange(z.shape[0])
+    c0, c1 = cdf[rows, cell], cdf[rows, cell + 1]
+    share = np.where(c1 > c0, (u - c0) / np.where(c1 > c0, c1 - c0, 1.0), 0.5)
+    return z[rows, cell] + share * (z[rows, cell + 1] - z[rows, cell])
+
+
+def _systematic(log_weight: FloatArray, rng: np.random.Generator) -> tuple[IntArray, float]:
+    """Systematic resampling indices and the effective sample size of the weights."""
+    n = log_weight.size
+    finite = np.isfinite(log_weight)
+    if not finite.any():
+        raise InputError(
+            "today's counts are impossible under every posterior draw (arrivals observed where "
+            "the model expects none, e.g. in closed hours); check the windows and opening hours"
+        )
+    w = np.exp(log_weight - log_weight[finite].max())
+    w[~finite] = 0.0
+    ess = float(w.sum() ** 2 / (w**2).sum())
+    if w.min() >= w.max() * (1.0 - 1e-12):
+        return np.arange(n), float(n)  # nothing to choose between: keep every draw once
+    cumulative = np.cumsum(w / w.sum())
+    cumulative[-1] = 1.0
+    positions = (rng.random() + np.arange(n)) / n
+    return np.searchsorted(cumulative, positions, side="right").astype(np.int64), ess
+
+
+# --------------------------------------------------------------------------- public
+
+
+def update_forecast(
+    posterior: CompactPosterior,
+    observed_starts: pd.DatetimeIndex,
+    observed_ends: pd.DatetimeIndex,
+    observed_counts: npt.ArrayLike,
+    starts: pd.DatetimeIndex,
+    ends: pd.DatetimeIndex,
+    *,
+    seed: int | None = None,
+    horizon_days: int = MAX_HORIZON_DAYS,
+) -> IntradayUpdate:
+    """Expected counts for ``[starts, ends)`` updated by today's observed counts.
+
+    Parameters
+    ----------
+    posterior
+        Compact posterior of the series.
+    observed_starts, observed_ends, observed_counts
+        Today's observed windows (tz-aware, within one local day after the history, not
+        overlapping) and their arrival counts. Leave out periods not yet observed or missing.
+    starts, ends
+        Windows to forecast; they must start no earlier than today's local midnight.
+    seed
+        Seeds resampling, the latent draws and later days' innovations; default: the
+        posterior's own seed, so the same inputs give the same answer.
+    horizon_days
+        Latest allowed window end, in days after the history.
+
+    Returns
+    -------
+    IntradayUpdate
+        ``lam`` has shape ``(draw, window)`` with equal weights: summarise it with
+        :func:`models.mixture.summarise`.
+
+    Raises
+    ------
+    InputError
+        (or a subclass) on bad windows or counts, or counts that no draw can explain.
+    """
+    counts, today = _check_observed(posterior, observed_starts, observed_ends, observed_counts)
+    tz = posterior.calendar.tz
+    if len(starts) == 0:
+        raise WindowError("no windows to forecast; give at least one start and end")
+    if starts.tz is None or ends.tz is None:
+        raise WindowError("window times must carry a UTC offset or zone")
+    today_start = _midnight(today, tz)
+    early = np.flatnonzero(starts.as_unit("ns").asi8 < today_start.value)
+    if early.size:
+        i = int(early[0])
+        raise WindowError(
+            f"window {i} starts {starts[i].isoformat()}, before today ({today_start.isoformat()}); "
+            "an intraday update forecasts today and later days only"
+        )
+    rng = np.random.default_rng(posterior.seed if seed is None else seed)
+    base = _without_latent(posterior)
+    per_window = expected_counts(
+        base, observed_starts, observed_ends, horizon_days=horizon_days
+    )  # (draw, observed window): mu_di
+    mass = per_window.sum(axis=1)
+    total = int(counts.sum())
+    shape_term = (special.xlogy(counts[None, :], per_window)).sum(axis=1)
+
+    draws = posterior.n_draws
+    day_index = (today - posterior.calendar.first_day).days
+    ahead = day_index - (posterior.n_days - 1)
+    latent_on = posterior.spec.latent_daily
+    rho = posterior.latent_rho.astype(np.float64)
+    sd = posterior.latent_sd.astype(np.float64)
+    if latent_on:
+        m = rho**ahead * posterior.latent[:, -1].astype(np.float64)
+        power = rho**2
+        # 1 + rho^2 + ... + rho^(2(k-1)), written to stay exact as rho^2 -> 1.
+        terms = np.where(
+            np.abs(1.0 - power) > 1e-8,
+            (1.0 - power**ahead) / np.where(np.abs(1.0 - power) > 1e-8, 1.0 - power, 1.0),
+            float(ahead),
+        )
+        v = sd**2 * terms
+    else:
+        m, v = np.zeros(draws), np.zeros(draws)
+    random = v > 0
+
+    log_evidence = total * m - mass * np.exp(m)  # exact where z is known (v = 0)
+    varied = np.flatnonzero(random)
+    for b0 in range(0, varied.size, _DRAW_BLOCK):
+        rows = varied[b0 : b0 + _DRAW_BLOCK]
+        log_evidence[rows] = _conditional(m[rows], v[rows], total, mass[rows])[2]
+    index, ess = _systematic(shape_term + log_evidence, rng)
+
+    chosen_z = m[index]
+    pick = np.flatnonzero(random[index])
+    u = rng.random(pick.size)
+    for b0 in range(0, pick.size, _DRAW_BLOCK):
+        rows = pick[b0 : b0 + _DRAW_BLOCK]
+        source = index[rows]
+        z, cdf, _ = _conditional(m[source], v[source], total, mass[source])
+        chosen_z[rows] = _sample_from(z, cdf, u[b0 : b0 + _DRAW_BLOCK])
+
+    lam = _updated_windows(
+        base, starts, ends, index, chosen_z, rho[index], sd[index], today, rng, horizon_days
+    )
+    prior_scale = np.exp(m + 0.5 * v)
+    return IntradayUpdate(
+        lam=lam,
+        day=today,
+        observed_total=total,
+        expected_before=float((mass * prior_scale).mean()),
+        draw_index=index,
+        effective_sample_size=ess,
+        latent=chosen_z if latent_on else None,
+    )
+
+
+def _updated_windows(
+    base: CompactPosterior,
+    starts: pd.DatetimeIndex,
+    ends: pd.DatetimeIndex,
+    index: IntArray,
+    today_z: FloatArray,
+    rho: FloatArray,
+    sd: FloatArray,
+    today: dt.date,
+    rng: np.random.Generator,
+    horizon_days: int,
+) -> FloatArray:
+    tz = base.calendar.tz
+    p_starts, p_ends, owner, dates = _pieces_by_day(starts, ends, tz)
+    mu = expected_counts(base, p_starts, p_ends, horizon_days=horizon_days)[index]
+    offset = (dates - np.datetime64(today, "D")).astype(np.int64)
+    days_after = int(offset.max())
+    path = np.empty((index.size, days_after + 1))
+    path[:, 0] = today_z
+    # Innovations row by row (day after day), so a longer request extends the same path.
+    shocks = rng.standard_normal((days_after, index.size))
+    for k in range(1, days_after + 1):
+        path[:, k] = rho * path[:, k - 1] + sd * shocks[k - 1]
+    pieces = mu * np.exp(path[:, offset])
+    out = np.zeros((index.size, len(starts)))
+    np.add.at(out.T, owner, pieces.T)
+    return out
