@@ -15,6 +15,8 @@ from pathlib import Path
 from typing import Any
 
 from models.exceptions import FitRejected, InputError, RatecastError, SeriesNotFound, StoreError
+from service.cli_capacity import register as _add_capacity
+from service.cli_serve import register as _add_serve
 from service.queries import CAUTION, forecast_csv, forecast_document, range_windows
 
 __all__ = ["CAUTION", "main"]
@@ -328,6 +330,8 @@ def _run_example(args: argparse.Namespace) -> int:
 
 
 _COMMANDS: list[Callable[[Any], None]] = [_add_fit, _add_forecast, _add_series, _add_example]
+_COMMANDS.append(_add_serve)
+_COMMANDS.append(_add_capacity)
 
 
 def build_parser() -> argparse.ArgumentParser:

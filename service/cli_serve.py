@@ -1,0 +1,97 @@
+"""``ratecast serve``: run the HTTP API on uvicorn.
+
+The store reaches the worker processes through ``RATECAST_STORE`` (each worker imports
+``service.main:app`` afresh and reads its settings from the environment).
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+from pathlib import Path
+from typing import Any
+
+from models.exceptions import InputError
+
+__all__ = ["default_workers", "register"]
+
+_WORKERS_ENV = "RATECAST_WORKERS"
+
+
+def default_workers() -> int:
+    """One worker per CPU this process may run on (answering is CPU-bound numpy work)."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # not on Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def _workers(text: str) -> int:
+    if text == "auto":
+        return default_workers()
+    try:
+        count = int(text)
+    except ValueError:
+        count = 0
+    if count < 1:
+        raise argparse.ArgumentTypeError(
+            f"--workers {text!r} is not allowed: use a whole number >= 1 or 'auto' (one per CPU)"
+        )
+    return count
+
+
+def _port(text: str) -> int:
+    try:
+        port = int(text)
+    except ValueError:
+        port = -1
+    if not 0 < port < 65536:
+        raise argparse.ArgumentTypeError(f"--port {text!r} is not allowed: use 1-65535")
+    return port
+
+
+def register(sub: Any) -> None:
+    """Add the ``serve`` subcommand to the ``ratecast`` parser's subparsers."""
+    p = sub.add_parser("serve", help="serve forecasts over HTTP (uvicorn)")
+    p.add_argument("--host", default="127.0.0.1", help="address to listen on (default 127.0.0.1)")
+    p.add_argument("--port", type=_port, default=8000, help="TCP port (default 8000)")
+    p.add_argument(
+        "--workers",
+        type=_workers,
+        default=os.environ.get(_WORKERS_ENV, "1"),
+        help=f"worker processes: a number or 'auto' (one per CPU); default ${_WORKERS_ENV} or 1",
+    )
+    p.add_argument(
+        "--store", default=None, help="store folder (default $RATECAST_STORE or ./store)"
+    )
+    p.add_argument(
+        "--log-level",
+        choices=("critical", "error", "warning", "info", "debug"),
+        default="info",
+    )
+    p.add_argument("--no-access-log", action="store_true", help="do not log one line per request")
+    p.set_defaults(run=_run_serve)
+
+
+def _run_serve(args: argparse.Namespace) -> int:
+    import uvicorn
+
+    if args.store:
+        store = Path(args.store)
+        if store.exists() and not store.is_dir():
+            raise InputError(f"--store {args.store!r} is a file; give the store folder")
+        os.environ["RATECAST_STORE"] = str(store.resolve())
+    from service.config import get_settings
+
+    get_settings.cache_clear()  # settings read from here on see the store chosen above
+    uvicorn.run(
+        "service.main:app",
+        host=args.host,
+        port=args.port,
+        workers=args.workers,
+        log_level=args.log_level,
+        access_log=not args.no_access_log,
+        server_header=False,
+        timeout_graceful_shutdown=10,
+    )
+    return 0
