@@ -9,7 +9,6 @@ exact mixture CRPS, RMSE of the mean and 80%/95% interval coverage. Prints a Mar
 
 from __future__ import annotations
 
-import datetime as dt
 import os
 import sys
 import time
@@ -50,9 +49,13 @@ def sensor_counts(sensor: str, first: str, last: str) -> pd.DataFrame:
     day = pd.to_datetime(raw["date"]) + pd.to_timedelta((hour < 6).astype(int), unit="D")
     start = day + pd.to_timedelta(hour, unit="h")
     frame = pd.DataFrame({"start": start, "count": raw[sensor].astype(int)}).sort_values("start")
-    keep = (frame["start"] >= pd.Timestamp(first)) & (frame["start"] < pd.Timestamp(last) + pd.Timedelta(days=1))
+    keep = (frame["start"] >= pd.Timestamp(first)) & (
+        frame["start"] < pd.Timestamp(last) + pd.Timedelta(days=1)
+    )
     frame = frame[keep]
-    return pd.DataFrame({"start": frame["start"].dt.strftime("%Y-%m-%dT%H:%M"), "count": frame["count"]})
+    return pd.DataFrame(
+        {"start": frame["start"].dt.strftime("%Y-%m-%dT%H:%M"), "count": frame["count"]}
+    )
 
 
 def score(posterior, actual: pd.DataFrame) -> dict[str, float]:  # type: ignore[no-untyped-def]
@@ -80,10 +83,23 @@ def main() -> None:
     actual = sensor_counts(YOUNG, *TEST)
 
     started = time.perf_counter()
-    alone = fit_model(make_model_data(histories[young_key], spec), spec, draws=500, tune=500,
-                      chains=2, seed=3, progressbar=False)
-    alone_post = compact_from_fit(alone.idata["posterior"], calendar=alone.data.calendar, spec=spec,
-                                  n_days=alone.data.n_days, opening=None, seed=3)
+    alone = fit_model(
+        make_model_data(histories[young_key], spec),
+        spec,
+        draws=500,
+        tune=500,
+        chains=2,
+        seed=3,
+        progressbar=False,
+    )
+    alone_post = compact_from_fit(
+        alone.idata["posterior"],
+        calendar=alone.data.calendar,
+        spec=spec,
+        n_days=alone.data.n_days,
+        opening=None,
+        seed=3,
+    )
     alone_seconds = time.perf_counter() - started
     started = time.perf_counter()
     joint = fit_joint(make_joint_data(histories, spec), spec, options=options)
@@ -91,16 +107,29 @@ def main() -> None:
     joint_seconds = time.perf_counter() - started
 
     young_weeks = (pd.Timestamp(HISTORY[1]) - pd.Timestamp(YOUNG_FROM)).days // 7 + 1
-    rows = {f"alone ({young_weeks} weeks)": (score(alone_post, actual), alone_seconds, alone.diagnostics),
-            "joint with 2 siblings (8 weeks)": (score(joint_post, actual), joint_seconds,
-                                                joint.diagnostics)}
-    print(f"Young sensor {YOUNG!r}, history from {YOUNG_FROM}, forecast {TEST[0]}..{TEST[1]} hourly "
-          f"({len(actual)} hours)\n")
+    rows = {
+        f"alone ({young_weeks} weeks)": (
+            score(alone_post, actual),
+            alone_seconds,
+            alone.diagnostics,
+        ),
+        "joint with 2 siblings (8 weeks)": (
+            score(joint_post, actual),
+            joint_seconds,
+            joint.diagnostics,
+        ),
+    }
+    print(
+        f"Young sensor {YOUNG!r}, history from {YOUNG_FROM}, forecast {TEST[0]}..{TEST[1]} hourly "
+        f"({len(actual)} hours)\n"
+    )
     print("| fit | mean CRPS | RMSE | 80% cover | 95% cover | fit s | max r_hat | divergences |")
     print("|---|---|---|---|---|---|---|---|")
     for label, (s, seconds, d) in rows.items():
-        print(f"| {label} | {s['crps']:.1f} | {s['rmse']:.1f} | {s['cover80']:.2f} | "
-              f"{s['cover95']:.2f} | {seconds:.0f} | {d.max_r_hat:.3f} | {d.divergences} |")
+        print(
+            f"| {label} | {s['crps']:.1f} | {s['rmse']:.1f} | {s['cover80']:.2f} | "
+            f"{s['cover95']:.2f} | {seconds:.0f} | {d.max_r_hat:.3f} | {d.divergences} |"
+        )
     sys.stdout.flush()
 
 
