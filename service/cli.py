@@ -355,6 +355,10 @@ def main(argv: Sequence[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
     try:
         return int(args.run(args))
+    except BrokenPipeError:
+        # Output piped into `head` and the like: stop quietly, as Unix tools do.
+        sys.stderr.close()
+        return 0
     except RatecastError as exc:
         print(f"ratecast {args.command}: error: {exc}", file=sys.stderr)
         for kind, code in _EXIT:
