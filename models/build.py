@@ -26,7 +26,8 @@ def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
     """Build the log-rate model with named dims ``dow``, ``slot``, ``day`` and ``bin``.
 
     Counts are Poisson given the rate, or negative binomial (mean ``mu``, variance
-    ``mu + mu**2 / dispersion``) when ``spec.observation == "negbin"``.
+    ``mu + mu**2 / dispersion[slot]``, deterministic ``dispersion`` with dims ``slot``) when
+    ``spec.observation == "negbin"``.
 
     Parameters
     ----------
@@ -113,12 +114,28 @@ def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
 
         mean = pt.exp(log_rate) * data.exposure_hours
         if spec.observation == "negbin":
-            # The prior sits on 1/sqrt(k), the coefficient of variation of the gamma noise, so
-            # its mode at 0 is the Poisson model and the scale reads as "how noisy is a bin".
-            overdispersion = pm.HalfNormal("overdispersion", sigma=priors.overdispersion_scale)
-            dispersion = pm.Deterministic("dispersion", 1.0 / overdispersion**2)
+            # The prior sits on log(1/sqrt(k)), the log coefficient of variation of the gamma
+            # noise, which reads as "how noisy is a bin relative to its rate".
+            log_cv = pm.Normal(
+                "log_overdispersion",
+                mu=np.log(priors.overdispersion_median),
+                sigma=priors.overdispersion_log_sd,
+            )
+            if spec.dispersion_by_slot and spec.has_time_of_day:
+                spread = pm.HalfNormal(
+                    "overdispersion_slot_sd", sigma=priors.overdispersion_slot_scale
+                )
+                raw = pm.Normal("overdispersion_slot_raw", 0.0, 1.0, dims="slot")
+                log_cv_slot = log_cv + spread * raw
+            else:
+                log_cv_slot = log_cv + pt.zeros(spec.slots_per_day)
+            dispersion = pm.Deterministic("dispersion", pt.exp(-2.0 * log_cv_slot), dims="slot")
             pm.NegativeBinomial(
-                "arrivals", mu=mean, alpha=dispersion, observed=data.count, dims="bin"
+                "arrivals",
+                mu=mean,
+                alpha=dispersion[feats.slot],
+                observed=data.count,
+                dims="bin",
             )
         else:
             pm.Poisson("arrivals", mu=mean, observed=data.count, dims="bin")
@@ -136,6 +153,10 @@ def _ar1_from_innovations(
     """
     lag = np.subtract.outer(np.arange(n_days), np.arange(n_days))
     lower = lag >= 0
+    # Keep rho off 0 and 1: the gradient of rho**0 is 0 * rho**-1, and the numba backend raises
+    # ZeroDivisionError (rather than returning nan) when an extreme warm-up step rounds rho to 0,
+    # which stopped sampling on real hourly data; near 1 the stationary scale blows up.
+    rho = pt.clip(rho, 1e-6, 1.0 - 1e-6)
     powers = pt.switch(lower, rho ** np.where(lower, lag, 0), 0.0)
     scale = pt.set_subtensor(pt.ones(n_days)[0], 1.0 / pt.sqrt(1.0 - rho**2))
     return sd * pt.dot(powers * scale[None, :], innovation)

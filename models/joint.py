@@ -155,7 +155,7 @@ def publish_joint(
                 "end_day": member.end_day.isoformat(),
                 "tz": member.calendar.tz,
                 "bin_minutes": member.calendar.bin_minutes,
-                "observed_bins": int(len(member.count)),
+                "observed_bins": len(member.count),
                 "arrivals": int(np.sum(member.count)),
             },
             "fit": {"joint_with": [n for n in fit.data.names if n != name], **fit.timings},

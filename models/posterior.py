@@ -15,7 +15,7 @@ from typing import Any
 
 import numpy as np
 
-from models.binning import OpeningHours
+from models.binning import OpeningHours, bin_grid
 from models.design import Calendar
 from models.exceptions import CorruptArtefact
 from models.spec import ModelSpec
@@ -48,8 +48,8 @@ class CompactPosterior:
         Seeds the forward simulation of future latent deviations, so a query always gets the same
         answer from the same version.
     dispersion
-        ``(draw,)`` negative binomial dispersion k (gamma noise shape) for
-        ``spec.observation == "negbin"``; None for a Poisson model.
+        ``(draw, slot)`` negative binomial dispersion k (gamma noise shape) of each slot of the
+        day for ``spec.observation == "negbin"``; None for a Poisson model.
     """
 
     week_log_rate: np.ndarray
@@ -91,10 +91,27 @@ class CompactPosterior:
         day by day from a generator seeded by :attr:`seed` (row k = history day n_days + k), so a
         longer query extends the same path and every query sees the same future.
         """
+        return self.latent_by_day(last_day).T
+
+    def latent_by_day(self, last_day: int) -> np.ndarray:
+        """The same path day-major, ``(last_day + 1, draw)`` (rows contiguous for gathers)."""
         path = self._latent_path_cache
-        if last_day >= path.shape[1]:
+        if last_day >= path.shape[0]:
             path = _extend_latent(self, last_day + 1)
-        return path[:, : last_day + 1]
+        return path[: last_day + 1]
+
+    @cached_property
+    def week_by_cell(self) -> np.ndarray:
+        """Weekly log rates cell-major, ``(dow, slot, draw)`` in float64 (for row gathers)."""
+        return np.ascontiguousarray(np.moveaxis(self.as_float64["week_log_rate"], 0, -1))
+
+    @cached_property
+    def bin_table(self) -> BinTable:
+        """Every bin from the first history day to the end of the cached horizon, with its model
+        coordinates and open share, built once per loaded version so queries skip the calendar
+        work (pandas time-zone arithmetic and holiday look-ups)."""
+        end = self.history_end + dt.timedelta(days=_CACHED_FUTURE_DAYS)
+        return BinTable.build(self.calendar, self.opening, self.calendar.first_day, end)
 
     @cached_property
     def _latent_path_cache(self) -> np.ndarray:
@@ -166,33 +183,75 @@ class CompactPosterior:
             if not np.isfinite(getattr(self, name)).all():
                 raise CorruptArtefact(f"array {name} holds non-finite values")
         if self.spec.observation == "negbin":
-            if self.dispersion is None or self.dispersion.shape != (d,):
+            slots = self.spec.slots_per_day
+            if self.dispersion is None or self.dispersion.shape != (d, slots):
                 found = None if self.dispersion is None else self.dispersion.shape
                 raise CorruptArtefact(
-                    f"a negative binomial posterior needs array dispersion of shape ({d},); "
-                    f"found {found}"
+                    f"a negative binomial posterior needs array dispersion of shape "
+                    f"({d}, {slots}); found {found}"
                 )
             # An infinite dispersion is a Poisson bin, so only NaN, zero and negatives are bad.
             if not np.all(self.dispersion > 0):
                 raise CorruptArtefact("array dispersion holds values that are not > 0")
 
 
+@dataclass(frozen=True)
+class BinTable:
+    """Consecutive bins with their coordinates: ``edges`` holds the UTC start of each bin in ns
+    plus the end of the last one."""
+
+    edges: np.ndarray
+    dow: np.ndarray
+    slot: np.ndarray
+    day: np.ndarray
+    years: np.ndarray
+    holiday: np.ndarray
+    open_share: np.ndarray
+
+    @classmethod
+    def build(
+        cls, calendar: Calendar, opening: OpeningHours | None, first: dt.date, end: dt.date
+    ) -> BinTable:
+        """Bins of the local days ``first`` (inclusive) to ``end`` (exclusive)."""
+        grid = bin_grid(first, end, tz=calendar.tz, bin_minutes=calendar.bin_minutes)
+        feats = calendar.features(grid)
+        share = np.ones(len(grid))
+        if opening is not None:
+            share = opening.open_fraction(
+                dow=feats.dow, start_minute=feats.minute, bin_minutes=calendar.bin_minutes
+            )
+        starts = grid.as_unit("ns").asi8
+        edges = np.append(starts, starts[-1] + calendar.bin_minutes * 60 * 10**9)
+        return cls(edges, feats.dow, feats.slot, feats.day, feats.years, feats.holiday, share)
+
+    def covers(self, lo: int, hi: int) -> bool:
+        """Whether ``[lo, hi)`` (UTC ns) lies inside the table."""
+        return bool(self.edges[0] <= lo and hi <= self.edges[-1])
+
+    def span(self, lo: int, hi: int) -> slice:
+        """The bins overlapping ``[lo, hi)``."""
+        first = int(np.searchsorted(self.edges, lo, side="right")) - 1
+        last = int(np.searchsorted(self.edges, hi, side="left"))
+        return slice(max(first, 0), min(last, len(self.edges) - 1))
+
+
 def _extend_latent(posterior: CompactPosterior, days: int) -> np.ndarray:
-    known = posterior.as_float64["latent"]
+    """Day-major latent path ``(days, draw)``: history, then the seeded forward simulation."""
+    known = np.ascontiguousarray(posterior.as_float64["latent"].T)
     extra = days - posterior.n_days
     if extra <= 0:
         return known
     if not posterior.spec.latent_daily:
-        return np.concatenate([known, np.zeros((posterior.n_draws, extra))], axis=1)
+        return np.concatenate([known, np.zeros((extra, posterior.n_draws))], axis=0)
     shocks = np.random.default_rng(posterior.seed).standard_normal((extra, posterior.n_draws))
     rho = posterior.as_float64["latent_rho"]
     sd = posterior.as_float64["latent_sd"]
-    future = np.empty((posterior.n_draws, extra))
-    state = known[:, -1]
+    future = np.empty((extra, posterior.n_draws))
+    state = known[-1]
     for k in range(extra):
         state = rho * state + sd * shocks[k]
-        future[:, k] = state
-    return np.concatenate([known, future], axis=1)
+        future[k] = state
+    return np.concatenate([known, future], axis=0)
 
 
 def compact_from_fit(
@@ -227,7 +286,7 @@ def compact_from_fit(
     if week is None:
         raise CorruptArtefact("the fit has no week_log_rate; was it built by models.build?")
     latent = take("latent", ("day",))
-    dispersion = take("dispersion", ()) if spec.observation == "negbin" else None
+    dispersion = take("dispersion", ("slot",)) if spec.observation == "negbin" else None
     if spec.observation == "negbin" and dispersion is None:
         raise CorruptArtefact("the negative binomial fit has no dispersion draws")
     return CompactPosterior(

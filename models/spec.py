@@ -51,9 +51,12 @@ class Priors:
         Sd of the holiday effect on the log rate.
     latent_scale
         Half-normal prior scale of the daily latent deviation's innovation sd.
-    overdispersion_scale
-        Half-normal prior scale of ``1 / sqrt(dispersion)`` for the negative binomial observation
-        (the coefficient of variation of the per-bin gamma noise; 0 is Poisson).
+    overdispersion_median, overdispersion_log_sd
+        Negative binomial observation: the coefficient of variation of the per-bin gamma noise,
+        ``1 / sqrt(dispersion)``, has a log-normal prior with this median and log-scale sd
+        (0.2 and 1: hour-to-hour noise of a few % to about 50% of the rate).
+    overdispersion_slot_scale
+        Half-normal prior scale of the sd of that log coefficient across slots of the day.
     """
 
     baseline_sigma: float = 2.0
@@ -64,7 +67,9 @@ class Priors:
     trend_sigma: float = 0.5
     holiday_sigma: float = 1.0
     latent_scale: float = 0.2
-    overdispersion_scale: float = 1.0
+    overdispersion_median: float = 0.2
+    overdispersion_log_sd: float = 1.0
+    overdispersion_slot_scale: float = 0.5
 
     def __post_init__(self) -> None:
         for f in fields(self):
@@ -131,7 +136,10 @@ class ModelSpec:
     ``"negbin"``, where each bin's rate carries its own Gamma(k, k) noise so a bin's count is
     negative binomial with variance ``mu + mu**2 / k``; real arrival series are usually
     overdispersed at the bin level beyond what the daily latent deviation explains.
-    ``bin_minutes=1440`` models daily counts; the time-of-day terms are then left out.
+    With ``dispersion_by_slot`` (the default) each slot of the day has its own dispersion,
+    partially pooled: measured on pedestrian counts, night hours scatter relatively several times
+    more than daytime hours (docs/calibration.md). ``bin_minutes=1440`` models daily counts; the
+    time-of-day terms are then left out.
 
     Examples
     --------
@@ -153,6 +161,7 @@ class ModelSpec:
     centred_latent: bool = False
     priors: Priors = field(default_factory=Priors)
     observation: str = "poisson"
+    dispersion_by_slot: bool = True
 
     def __post_init__(self) -> None:
         if self.bin_minutes not in BIN_MINUTES:

