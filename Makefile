@@ -36,5 +36,11 @@ check: $(STAMP)
 bench: $(STAMP)
 	$(BIN)/python bench/run.py
 
+# Backtests on open real data (Auckland pedestrians, US births) and the joint-fit evidence; slow
+# (about 15 min on an idle 2-core machine). Writes docs/evidence.md and docs/evidence/.
+evidence: $(STAMP)
+	$(BIN)/python bench/evidence.py
+	$(BIN)/python bench/evidence_joint.py
+
 clean:
 	rm -rf .demo .pytest_cache .mypy_cache .ruff_cache build *.egg-info
