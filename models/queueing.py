@@ -52,6 +52,7 @@ __all__ = [
     "ErlangAResult",
     "agents_for_service_level",
     "agents_for_wait_probability",
+    "answered_within",
     "average_speed_of_answer",
     "erlang_a",
     "erlang_b",
@@ -596,7 +597,7 @@ def _queue_log_weights(arrival_rate: float, capacity: float, patience_rate: floa
         size = min(2 * size, _MAX_QUEUE_STATES)
 
 
-def _answered_within(
+def answered_within(
     queue_ahead: FloatArray, capacity: float, patience_rate: float, within: float
 ) -> FloatArray:
     """P(answered within ``within``) for a caller who finds ``j`` callers already queued.
@@ -704,7 +705,7 @@ def erlang_a(
     level = None
     if within is not None:
         keep = log_queue > log_queue.max() + _LOG_NEGLIGIBLE
-        answered = _answered_within(queued[keep], capacity, theta, within)
+        answered = answered_within(queued[keep], capacity, theta, within)
         level = math.exp(log_mass_below - log_total) + float(
             np.sum(np.exp(log_queue[keep] - log_total) * answered)
         )

@@ -68,7 +68,7 @@ from scipy import special
 
 from models.exceptions import StaffingError
 from models.mixture import mixture_quantile
-from models.queueing import _answered_within
+from models.queueing import answered_within
 
 __all__ = [
     "STAFFING_CAUTION",
@@ -289,7 +289,7 @@ def _erlang_a_level(
         states = _queue_states(float(rate[group].max()), capacity, theta)
         j = np.arange(states, dtype=np.float64)
         log_service = np.concatenate(([0.0], np.cumsum(np.log(capacity + theta * j[1:]))))
-        answered = _answered_within(j, capacity, theta, within)
+        answered = answered_within(j, capacity, theta, within)
         rows = max(1, _BLOCK_FLOATS // states)
         for r0 in range(0, group.size, rows):
             idx = group[r0 : r0 + rows]

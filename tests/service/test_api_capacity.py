@@ -13,7 +13,7 @@ from fastapi.testclient import TestClient
 
 from models.staffing import STAFFING_CAUTION, ServiceTarget
 from models.store import FileStore
-from service.cli_capacity import staffing_document, update_document
+from service.capacity_queries import staffing_document, update_document
 from service.main import create_app
 from tests.service.api_support import TZ, hump_table, publish, settings
 

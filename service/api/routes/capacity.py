@@ -29,7 +29,7 @@ from service.api.schemas import (
     WindowIn,
     Zone,
 )
-from service.cli_capacity import staffing_document, update_document
+from service.capacity_queries import staffing_document, update_document
 
 __all__ = [
     "IntradayRequest",
