@@ -223,3 +223,19 @@ class TestWindowErrors:
         a = parse_instant("2026-03-02T09:00", tz=CHICAGO)
         starts, ends = split_range(a, a + pd.Timedelta(minutes=70), parse_step("30min"))
         assert [(e - s).seconds // 60 for s, e in zip(starts, ends, strict=True)] == [30, 30, 10]
+
+
+class TestDerivedArrayCache:
+    def test_cache_is_bounded_and_answers_stay_the_same(self, weekly_table) -> None:
+        from models import posterior as posterior_module
+
+        start = pd.Timestamp("2026-03-02T09:00-06:00")
+        one = pd.DatetimeIndex([start]), pd.DatetimeIndex([start + pd.Timedelta(hours=2)])
+        first = synthetic_posterior(weekly_table, draws=3)
+        before = expected_counts(first, *one)
+        others = [synthetic_posterior(weekly_table, draws=3, seed=s) for s in range(40)]
+        for other in others:
+            expected_counts(other, *one)
+        assert len(posterior_module._cache) <= posterior_module.CACHED_VERSIONS
+        # The first posterior's arrays were evicted and are rebuilt to the same answer.
+        np.testing.assert_array_equal(expected_counts(first, *one), before)
