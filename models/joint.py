@@ -62,6 +62,10 @@ def make_joint_data(histories: dict[str, BinnedSeries], spec: ModelSpec) -> Join
     """
     if len(histories) < 2:
         raise InputError(f"a joint fit needs at least two series; got {len(histories)}")
+    if spec.observation != "poisson":
+        raise InputError(
+            f"observation {spec.observation!r} is not available for joint fits yet; allowed: 'poisson'"
+        )
     names = tuple(check_series_name(n) for n in histories)
     zones = {h.tz for h in histories.values()}
     widths = {h.bin_minutes for h in histories.values()}

@@ -103,7 +103,6 @@ def _add_fit(sub: Any) -> None:
 
 
 def _run_fit(args: argparse.Namespace) -> int:
-    import datetime as dt
 
     from models.binning import (
         OpeningHours,
@@ -115,7 +114,7 @@ def _run_fit(args: argparse.Namespace) -> int:
     )
     from models.pipeline import FitOptions, fit_and_publish
     from models.predict import parse_instant
-    from models.spec import HolidayCalendar, ModelSpec
+    from models.spec import ModelSpec
     from models.store import FileStore, check_series_name
 
     check_series_name(args.series)
@@ -136,22 +135,7 @@ def _run_fit(args: argparse.Namespace) -> int:
         )
     else:
         binned = bin_counts(table, tz=args.tz, bin_minutes=bin_minutes, opening=opening)
-    calendar = None
-    if args.holidays or args.special_days:
-        country, _, subdivision = (args.holidays or "").partition(":")
-        extra: tuple[dt.date, ...] = ()
-        if args.special_days:
-            try:
-                extra = tuple(
-                    dt.date.fromisoformat(d.strip()) for d in args.special_days.split(",")
-                )
-            except ValueError as exc:
-                raise InputError(
-                    f"--special-days {args.special_days!r} must be YYYY-MM-DD dates separated by commas"
-                ) from exc
-        calendar = HolidayCalendar(
-            country=country.upper() or None, subdivision=subdivision.upper() or None, extra=extra
-        )
+    calendar = _holiday_calendar(args)
     spec = ModelSpec(
         bin_minutes=binned.bin_minutes,
         trend=not args.no_trend,
@@ -190,6 +174,117 @@ def _run_fit(args: argparse.Namespace) -> int:
         f"published {args.series} {outcome.version.version}: diagnostics {status}; "
         f"max r_hat {diag.max_r_hat:.3f}, min bulk ESS {diag.min_ess_bulk:.0f}, "
         f"{diag.divergences} divergences, sampling {diag.sampling_seconds:.0f} s"
+    )
+    for problem in diag.problems:
+        print(f"  - {problem}")
+    return 0
+
+
+def _holiday_calendar(args: argparse.Namespace) -> Any:
+    """The holiday calendar named by ``--holidays`` and ``--special-days``, or None."""
+    import datetime as dt
+
+    from models.spec import HolidayCalendar
+
+    if not (args.holidays or args.special_days):
+        return None
+    country, _, subdivision = (args.holidays or "").partition(":")
+    extra: tuple[dt.date, ...] = ()
+    if args.special_days:
+        try:
+            extra = tuple(dt.date.fromisoformat(d.strip()) for d in args.special_days.split(","))
+        except ValueError as exc:
+            raise InputError(
+                f"--special-days {args.special_days!r} must be YYYY-MM-DD dates separated by commas"
+            ) from exc
+    return HolidayCalendar(
+        country=country.upper() or None, subdivision=subdivision.upper() or None, extra=extra
+    )
+
+
+# ----------------------------------------------------------------------------- fit-group
+def _add_fit_group(sub: Any) -> None:
+    p = sub.add_parser(
+        "fit-group",
+        help="fit related series jointly (shared weekly shape, per-series deviations) and "
+        "publish each as its own series",
+    )
+    p.add_argument(
+        "--member",
+        action="append",
+        required=True,
+        metavar="NAME=FILE",
+        help="a series name and its counts file (CSV/Parquet, columns start,count); repeat",
+    )
+    p.add_argument("--tz", required=True, help="IANA time zone shared by the series")
+    p.add_argument("--bin", default=None, help="bin width: 15min, 30min or 1h (default: inferred)")
+    p.add_argument("--open", dest="opening", default=None, help="opening hours shared by all")
+    p.add_argument("--holidays", default=None, help="COUNTRY or COUNTRY:SUBDIVISION")
+    p.add_argument("--special-days", default=None, help="extra dates, YYYY-MM-DD,...")
+    p.add_argument("--no-trend", action="store_true")
+    p.add_argument("--no-latent", action="store_true")
+    p.add_argument("--draws", type=int, default=1000)
+    p.add_argument("--tune", type=int, default=1000)
+    p.add_argument("--chains", type=int, default=4)
+    p.add_argument("--seed", type=int, default=20261202)
+    p.add_argument("--force", action="store_true", help="publish even if the gate fails")
+    p.add_argument("--no-progress", action="store_true")
+    p.add_argument("--store", default=None)
+    p.set_defaults(run=_run_fit_group)
+
+
+def _run_fit_group(args: argparse.Namespace) -> int:
+    from models.binning import OpeningHours, bin_counts, parse_bin_width, read_table
+    from models.joint import fit_joint, make_joint_data, publish_joint
+    from models.pipeline import FitOptions
+    from models.spec import ModelSpec
+    from models.store import FileStore
+
+    opening = OpeningHours.parse(args.opening) if args.opening else None
+    bin_minutes = parse_bin_width(args.bin) if args.bin else None
+    histories = {}
+    for member in args.member:
+        name, sep, path = member.partition("=")
+        if not sep or not name or not path:
+            raise InputError(f"--member {member!r} must be NAME=FILE, e.g. queue-a=queue_a.csv")
+        if name in histories:
+            raise InputError(f"--member names series {name!r} twice")
+        histories[name] = bin_counts(
+            read_table(path), tz=args.tz, bin_minutes=bin_minutes, opening=opening
+        )
+    widths = {h.bin_minutes for h in histories.values()}
+    spec = ModelSpec(
+        bin_minutes=min(widths),
+        trend=not args.no_trend,
+        latent_daily=not args.no_latent,
+        holidays=_holiday_calendar(args),
+    )
+    data = make_joint_data(histories, spec)
+    print(
+        f"fitting {', '.join(histories)} jointly ({sum(h.total for h in histories.values())} "
+        f"arrivals, {data.n_days} days, {args.tz})...",
+        file=sys.stderr,
+    )
+    options = FitOptions(
+        draws=args.draws,
+        tune=args.tune,
+        chains=args.chains,
+        seed=args.seed,
+        progressbar=not args.no_progress,
+    )
+    fit = fit_joint(data, spec, options=options)
+    published = publish_joint(
+        fit,
+        FileStore(_store_path(args)),
+        openings=dict.fromkeys(histories, opening),
+        force=args.force,
+    )
+    diag = fit.diagnostics
+    status = "passed" if diag.ok else "FAILED (published because of --force)"
+    print(
+        f"published {', '.join(f'{n} {v.version}' for n, v in published.items())}: diagnostics "
+        f"{status}; max r_hat {diag.max_r_hat:.3f}, min bulk ESS {diag.min_ess_bulk:.0f}, "
+        f"{diag.divergences} divergences"
     )
     for problem in diag.problems:
         print(f"  - {problem}")
@@ -338,7 +433,13 @@ def _run_example(args: argparse.Namespace) -> int:
     return 0
 
 
-_COMMANDS: list[Callable[[Any], None]] = [_add_fit, _add_forecast, _add_series, _add_example]
+_COMMANDS: list[Callable[[Any], None]] = [
+    _add_fit,
+    _add_fit_group,
+    _add_forecast,
+    _add_series,
+    _add_example,
+]
 _COMMANDS.append(_add_serve)
 _COMMANDS.append(_add_capacity)
 _COMMANDS.append(_add_backtest)
