@@ -280,5 +280,5 @@ def _sample_nutpie(
         seed=seed,
         progress_bar=progressbar,
         target_accept=target_accept,
-        store_warmup=False,
+        save_warmup=True,  # warm-up stats give the leapfrog count; the groups are dropped after
     )

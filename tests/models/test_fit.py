@@ -180,3 +180,26 @@ def test_bad_sampling_options_are_refused() -> None:
     spec = ModelSpec.intercept_only()
     with pytest.raises(InputError, match="draws=5"):
         fit_model(make_model_data(binned, spec), spec, draws=5)
+
+
+def test_nutpie_sampler_gives_the_same_conjugate_posterior() -> None:
+    # Hoff 2009 sec. 3.2 [R]: Gamma(219, 112), mean 1.9554; the optional nutpie sampler must agree.
+    first = dt.date(2026, 6, 1)
+    grid = bin_grid(first, first + dt.timedelta(days=5), tz=TZ, bin_minutes=60)[:111]
+    counts = np.array([2] * 106 + [1] * 5)
+    binned = BinnedSeries(grid, counts, np.ones(111), TZ, 60, first, first + dt.timedelta(days=5))
+    spec = ModelSpec.intercept_only(priors=Priors(baseline_gamma=(2.0, 1.0)))
+    fit = fit_model(
+        make_model_data(binned, spec),
+        spec,
+        draws=1000,
+        tune=500,
+        chains=2,
+        sampler="nutpie",
+        seed=2,
+        progressbar=False,
+    )
+    rate = fit.idata["posterior"]["baseline_rate"].to_numpy().ravel()
+    assert rate.mean() == pytest.approx(219 / 112, abs=0.015)
+    assert fit.timings["leapfrog_steps"] > 0
+    assert "warmup_posterior" not in fit.idata.groups()
