@@ -17,6 +17,7 @@ from typing import Any
 from models.exceptions import FitRejected, InputError, RatecastError, SeriesNotFound, StoreError
 from service.cli_backtest import register as _add_backtest
 from service.cli_capacity import register as _add_capacity
+from service.cli_common import grid, holiday_calendar, number_list, read_history, store_from_args
 from service.cli_serve import register as _add_serve
 from service.queries import CAUTION, forecast_csv, forecast_document, range_windows
 
@@ -24,33 +25,6 @@ __all__ = ["CAUTION", "main"]
 
 
 _EXIT = ((InputError, 2), (SeriesNotFound, 3), (FitRejected, 4), (StoreError, 5))
-
-
-def _store_path(args: argparse.Namespace) -> Path:
-    if getattr(args, "store", None):
-        return Path(args.store)
-    from service.config import get_settings
-
-    return get_settings().store
-
-
-def _floats(text: str, *, name: str) -> tuple[float, ...]:
-    try:
-        values = tuple(float(v) for v in text.split(",") if v.strip())
-    except ValueError as exc:
-        raise InputError(
-            f"--{name} {text!r} must be comma-separated numbers like 0.8,0.95"
-        ) from exc
-    return values
-
-
-def _ints(text: str, *, name: str) -> tuple[int, ...]:
-    try:
-        return tuple(int(v) for v in text.split(",") if v.strip())
-    except ValueError as exc:
-        raise InputError(
-            f"--{name} {text!r} must be comma-separated whole numbers like 5,10"
-        ) from exc
 
 
 # ----------------------------------------------------------------------------- fit
@@ -104,38 +78,18 @@ def _add_fit(sub: Any) -> None:
 
 def _run_fit(args: argparse.Namespace) -> int:
 
-    from models.binning import (
-        OpeningHours,
-        bin_counts,
-        bin_events,
-        parse_bin_width,
-        parse_timestamps,
-        read_table,
-    )
+    from models.binning import OpeningHours
     from models.pipeline import FitOptions, fit_and_publish
     from models.predict import parse_instant
     from models.spec import ModelSpec
-    from models.store import FileStore, check_series_name
+    from models.store import check_series_name
 
     check_series_name(args.series)
     opening = OpeningHours.parse(args.opening) if args.opening else None
-    bin_minutes = parse_bin_width(args.bin) if args.bin else None
     path = args.events or args.counts
-    table = read_table(path)
-    if args.events:
-        if args.time_column not in table.columns:
-            raise InputError(
-                f"events file has no column {args.time_column!r}; columns: "
-                f"{', '.join(map(str, table.columns))} (choose one with --time-column)"
-            )
-        stamps = parse_timestamps(table[args.time_column], tz=args.tz, column=args.time_column)
-        until = parse_instant(args.until, tz=args.tz).to_pydatetime() if args.until else None
-        binned = bin_events(
-            stamps, tz=args.tz, bin_minutes=bin_minutes or 60, opening=opening, until=until
-        )
-    else:
-        binned = bin_counts(table, tz=args.tz, bin_minutes=bin_minutes, opening=opening)
-    calendar = _holiday_calendar(args)
+    until = parse_instant(args.until, tz=args.tz).to_pydatetime() if args.until else None
+    binned = read_history(args, opening=opening, until=until)
+    calendar = holiday_calendar(args.holidays, args.special_days)
     spec = ModelSpec(
         bin_minutes=binned.bin_minutes,
         trend=not args.no_trend,
@@ -160,7 +114,7 @@ def _run_fit(args: argparse.Namespace) -> int:
     outcome = fit_and_publish(
         binned,
         spec,
-        store=FileStore(_store_path(args)),
+        store=store_from_args(args),
         series=args.series,
         opening=opening,
         options=options,
@@ -178,28 +132,6 @@ def _run_fit(args: argparse.Namespace) -> int:
     for problem in diag.problems:
         print(f"  - {problem}")
     return 0
-
-
-def _holiday_calendar(args: argparse.Namespace) -> Any:
-    """The holiday calendar named by ``--holidays`` and ``--special-days``, or None."""
-    import datetime as dt
-
-    from models.spec import HolidayCalendar
-
-    if not (args.holidays or args.special_days):
-        return None
-    country, _, subdivision = (args.holidays or "").partition(":")
-    extra: tuple[dt.date, ...] = ()
-    if args.special_days:
-        try:
-            extra = tuple(dt.date.fromisoformat(d.strip()) for d in args.special_days.split(","))
-        except ValueError as exc:
-            raise InputError(
-                f"--special-days {args.special_days!r} must be YYYY-MM-DD dates separated by commas"
-            ) from exc
-    return HolidayCalendar(
-        country=country.upper() or None, subdivision=subdivision.upper() or None, extra=extra
-    )
 
 
 # ----------------------------------------------------------------------------- fit-group
@@ -238,7 +170,6 @@ def _run_fit_group(args: argparse.Namespace) -> int:
     from models.joint import fit_joint, make_joint_data, publish_joint
     from models.pipeline import FitOptions
     from models.spec import ModelSpec
-    from models.store import FileStore
 
     opening = OpeningHours.parse(args.opening) if args.opening else None
     bin_minutes = parse_bin_width(args.bin) if args.bin else None
@@ -257,7 +188,7 @@ def _run_fit_group(args: argparse.Namespace) -> int:
         bin_minutes=min(widths),
         trend=not args.no_trend,
         latent_daily=not args.no_latent,
-        holidays=_holiday_calendar(args),
+        holidays=holiday_calendar(args.holidays, args.special_days),
     )
     data = make_joint_data(histories, spec)
     print(
@@ -275,7 +206,7 @@ def _run_fit_group(args: argparse.Namespace) -> int:
     fit = fit_joint(data, spec, options=options)
     published = publish_joint(
         fit,
-        FileStore(_store_path(args)),
+        store_from_args(args),
         openings=dict.fromkeys(histories, opening),
         force=args.force,
     )
@@ -311,9 +242,8 @@ def _add_forecast(sub: Any) -> None:
 
 
 def _run_forecast(args: argparse.Namespace) -> int:
-    from models.store import FileStore
 
-    stored = FileStore(_store_path(args)).load(args.series, args.version)
+    stored = store_from_args(args).load(args.series, args.version)
     starts, ends = range_windows(
         args.start, args.end, step=args.step, tz=stored.posterior.calendar.tz
     )
@@ -321,9 +251,9 @@ def _run_forecast(args: argparse.Namespace) -> int:
         stored,
         starts,
         ends,
-        levels=_floats(args.levels, name="levels"),
-        quantiles=_floats(args.quantiles, name="quantiles"),
-        at_least=_ints(args.at_least, name="at-least"),
+        levels=number_list(args.levels, option="--levels"),
+        quantiles=number_list(args.quantiles, option="--quantiles"),
+        at_least=number_list(args.at_least, option="--at-least", kind=int),
         total=args.total,
     )
     if args.format == "json":
@@ -353,21 +283,10 @@ def forecast_table(doc: dict[str, Any]) -> str:
         cells += [str(v) for v in row["quantiles"].values()]
         cells += [f"{row['p_zero']:.3f}"] + [f"{p:.3f}" for p in row.get("at_least", {}).values()]
         body.append(cells)
-    widths = [max(len(h), *(len(r[i]) for r in body)) for i, h in enumerate(headers)]
     lines = [
         f"{doc['series']} {doc['model_version']} ({doc['tz']}): predicted arrivals per window",
-        "  ".join(
-            h.rjust(w) if i else h.ljust(w)
-            for i, (h, w) in enumerate(zip(headers, widths, strict=True))
-        ),
+        *grid(headers, body),
     ]
-    for cells in body:
-        lines.append(
-            "  ".join(
-                c.rjust(w) if i else c.ljust(w)
-                for i, (c, w) in enumerate(zip(cells, widths, strict=True))
-            )
-        )
     lines.append("")
     lines.append(CAUTION)
     return "\n".join(lines) + "\n"
@@ -393,9 +312,8 @@ def _add_series(sub: Any) -> None:
 
 
 def _run_series(args: argparse.Namespace) -> int:
-    from models.store import FileStore
 
-    store = FileStore(_store_path(args))
+    store = store_from_args(args)
     if args.name:
         stored = store.load(args.name)
         print(json.dumps({**stored.manifest, "versions": store.versions(args.name)}, indent=2))

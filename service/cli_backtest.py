@@ -14,6 +14,7 @@ from pathlib import Path
 from typing import Any
 
 from models.exceptions import InputError
+from service.cli_common import holiday_calendar, number_list, read_history
 
 __all__ = ["register"]
 
@@ -72,8 +73,8 @@ def _run(args: argparse.Namespace) -> int:
     from models.spec import ModelSpec
 
     opening = OpeningHours.parse(args.opening) if args.opening else None
-    binned = _load(args, opening=opening)
-    holidays = _holidays(args.holidays)
+    binned = read_history(args, opening=opening)
+    holidays = holiday_calendar(args.holidays)
     origins = make_origins(
         binned,
         first=_date(args.first_origin, "--first-origin"),
@@ -138,37 +139,6 @@ def _run(args: argparse.Namespace) -> int:
     return 0
 
 
-def _load(args: argparse.Namespace, *, opening: Any) -> Any:
-    from models.binning import (
-        bin_counts,
-        bin_events,
-        parse_bin_width,
-        parse_timestamps,
-        read_table,
-    )
-
-    bin_minutes = parse_bin_width(args.bin) if args.bin else None
-    table = read_table(args.events or args.counts)
-    if args.counts:
-        return bin_counts(table, tz=args.tz, bin_minutes=bin_minutes, opening=opening)
-    if args.time_column not in table.columns:
-        raise InputError(
-            f"events file has no column {args.time_column!r}; columns: "
-            f"{', '.join(map(str, table.columns))} (choose one with --time-column)"
-        )
-    stamps = parse_timestamps(table[args.time_column], tz=args.tz, column=args.time_column)
-    return bin_events(stamps, tz=args.tz, bin_minutes=bin_minutes or 60, opening=opening)
-
-
-def _holidays(text: str | None) -> Any:
-    if not text:
-        return None
-    from models.spec import HolidayCalendar
-
-    country, _, subdivision = text.partition(":")
-    return HolidayCalendar(country=country.upper(), subdivision=subdivision.upper() or None)
-
-
 def _date(text: str, option: str) -> dt.date:
     try:
         return dt.date.fromisoformat(text)
@@ -177,10 +147,7 @@ def _date(text: str, option: str) -> dt.date:
 
 
 def _numbers(text: str, option: str, kind: Any) -> tuple[Any, ...]:
-    try:
-        values = tuple(kind(v) for v in text.split(",") if v.strip())
-    except ValueError as exc:
-        raise InputError(f"{option} {text!r} must be comma-separated numbers like 1,7") from exc
+    values = number_list(text, option=option, kind=kind)
     if not values:
         raise InputError(f"{option} {text!r} holds no numbers")
     return values

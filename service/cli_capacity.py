@@ -12,7 +12,6 @@ import datetime as dt
 import io
 import json
 import sys
-from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -34,6 +33,7 @@ from service.capacity_queries import (
     staffing_document,
     update_document,
 )
+from service.cli_common import grid, number_list, store_from_args
 from service.queries import flat_row
 
 __all__ = ["register", "staffing_csv", "staffing_table", "update_csv", "update_table"]
@@ -43,18 +43,6 @@ __all__ = ["register", "staffing_csv", "staffing_table", "update_csv", "update_t
 
 def _pct(value: float) -> str:
     return f"{100.0 * value:.1f}%"
-
-
-def _grid(headers: list[str], body: list[list[str]]) -> list[str]:
-    widths = [max(len(h), *(len(r[i]) for r in body)) for i, h in enumerate(headers)]
-
-    def line(cells: list[str]) -> str:
-        return "  ".join(
-            c.rjust(w) if i else c.ljust(w)
-            for i, (c, w) in enumerate(zip(cells, widths, strict=True))
-        )
-
-    return [line(headers), *(line(cells) for cells in body)]
 
 
 def _span(start: str, end: str) -> str:
@@ -106,9 +94,9 @@ def staffing_table(doc: dict[str, Any]) -> str:
         f"{_pct(target['share'])} answered within {target['answer_within_seconds']:g} s, "
         f"handle time {target['handle_time_seconds']:g} s{patience} ({target['queue']}), "
         f"shrinkage {_pct(doc['shrinkage'])}",
-        *_grid(headers, body),
+        *grid(headers, body),
         "",
-        *_grid(
+        *grid(
             [
                 "day",
                 "mean arrivals",
@@ -191,7 +179,7 @@ def update_table(doc: dict[str, Any]) -> str:
         f"{doc['observed_total']} arrivals observed on {doc['day']} (expected "
         f"{doc['expected_before']:.1f} before){level}; effective draws "
         f"{doc['effective_sample_size']:.0f} of {doc['draws']}",
-        *_grid(headers, body),
+        *grid(headers, body),
         "",
         doc["caution"],
     ]
@@ -209,23 +197,6 @@ def update_csv(doc: dict[str, Any]) -> str:
 
 
 # ----------------------------------------------------------------------------- commands
-
-
-def _store(args: argparse.Namespace) -> Any:
-    from models.store import FileStore
-
-    if args.store:
-        return FileStore(Path(args.store))
-    from service.config import get_settings
-
-    return FileStore(get_settings().store)
-
-
-def _number_list(text: str, *, name: str, kind: type = float) -> list[Any]:
-    try:
-        return [kind(v) for v in text.split(",") if v.strip()]
-    except ValueError as exc:
-        raise InputError(f"--{name} {text!r} must be comma-separated numbers") from exc
 
 
 def _common(p: argparse.ArgumentParser) -> None:
@@ -268,7 +239,7 @@ def _add_staff(sub: Any) -> None:
 
 
 def _run_staff(args: argparse.Namespace) -> int:
-    stored = _store(args).load(args.series, args.version)
+    stored = store_from_args(args).load(args.series, args.version)
     tz = stored.posterior.calendar.tz
     starts, ends = plan_windows(args.start, args.end, step=args.step, tz=tz)
     target = ServiceTarget(
@@ -277,7 +248,7 @@ def _run_staff(args: argparse.Namespace) -> int:
         share=args.target,
         patience=args.patience,
     )
-    agents = _number_list(args.agents, name="agents", kind=int) if args.agents else None
+    agents = number_list(args.agents, option="--agents", kind=int) if args.agents else None
     doc = staffing_document(
         stored,
         starts,
@@ -318,7 +289,7 @@ def _add_update(sub: Any) -> None:
 
 
 def _run_update(args: argparse.Namespace) -> int:
-    stored = _store(args).load(args.series, args.version)
+    stored = store_from_args(args).load(args.series, args.version)
     calendar = stored.posterior.calendar
     tz = calendar.tz
     o_starts, o_ends, counts = read_observed(args.observed, tz=tz, bin_minutes=calendar.bin_minutes)
@@ -339,8 +310,8 @@ def _run_update(args: argparse.Namespace) -> int:
         counts,
         starts,
         ends,
-        levels=_number_list(args.levels, name="levels"),
-        quantiles=_number_list(args.quantiles, name="quantiles"),
+        levels=number_list(args.levels, option="--levels"),
+        quantiles=number_list(args.quantiles, option="--quantiles"),
         seed=args.seed,
     )
     if args.format == "json":
@@ -368,7 +339,7 @@ def _add_simulate(sub: Any) -> None:
 def _run_simulate(args: argparse.Namespace) -> int:
     from models.simulate import simulate_arrivals, write_arrivals
 
-    stored = _store(args).load(args.series, args.version)
+    stored = store_from_args(args).load(args.series, args.version)
     tz = stored.posterior.calendar.tz
     start, end = parse_instant(args.start, tz=tz), parse_instant(args.end, tz=tz)
     arrivals = simulate_arrivals(

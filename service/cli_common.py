@@ -1,0 +1,84 @@
+"""Pieces every CLI command module shares: the store, number lists, history files, tables."""
+
+from __future__ import annotations
+
+import argparse
+import datetime as dt
+from pathlib import Path
+from typing import Any
+
+from models.exceptions import InputError
+
+__all__ = ["grid", "holiday_calendar", "number_list", "read_history", "store_from_args"]
+
+
+def store_from_args(args: argparse.Namespace) -> Any:
+    """The file store named by ``--store``, else ``$RATECAST_STORE``, else ``./store``."""
+    from models.store import FileStore
+    from service.config import get_settings
+
+    return FileStore(Path(args.store) if getattr(args, "store", None) else get_settings().store)
+
+
+def number_list(text: str, *, option: str, kind: type = float) -> tuple[Any, ...]:
+    """Parse ``"0.8,0.95"`` (or whole numbers with ``kind=int``); the error names the option."""
+    try:
+        return tuple(kind(v) for v in text.split(",") if v.strip())
+    except ValueError as exc:
+        example = "5,10" if kind is int else "0.8,0.95"
+        raise InputError(
+            f"{option} {text!r} must be comma-separated {'whole ' if kind is int else ''}numbers "
+            f"like {example}"
+        ) from exc
+
+
+def holiday_calendar(holidays: str | None, special_days: str | None = None) -> Any:
+    """The calendar of ``COUNTRY[:SUBDIVISION]`` plus ``YYYY-MM-DD,...`` extra dates, or None."""
+    from models.spec import HolidayCalendar
+
+    if not (holidays or special_days):
+        return None
+    country, _, subdivision = (holidays or "").partition(":")
+    extra: tuple[dt.date, ...] = ()
+    if special_days:
+        try:
+            extra = tuple(dt.date.fromisoformat(d.strip()) for d in special_days.split(","))
+        except ValueError as exc:
+            raise InputError(
+                f"--special-days {special_days!r} must be YYYY-MM-DD dates separated by commas"
+            ) from exc
+    return HolidayCalendar(
+        country=country.upper() or None, subdivision=subdivision.upper() or None, extra=extra
+    )
+
+
+def read_history(args: argparse.Namespace, *, opening: Any, until: Any = None) -> Any:
+    """Bin ``--events`` (column ``--time-column``) or ``--counts`` into a BinnedSeries."""
+    from models.binning import bin_counts, bin_events, parse_bin_width, parse_timestamps, read_table
+
+    bin_minutes = parse_bin_width(args.bin) if args.bin else None
+    table = read_table(args.events or args.counts)
+    if args.counts:
+        return bin_counts(table, tz=args.tz, bin_minutes=bin_minutes, opening=opening)
+    if args.time_column not in table.columns:
+        raise InputError(
+            f"events file has no column {args.time_column!r}; columns: "
+            f"{', '.join(map(str, table.columns))} (choose one with --time-column)"
+        )
+    stamps = parse_timestamps(table[args.time_column], tz=args.tz, column=args.time_column)
+    return bin_events(
+        stamps, tz=args.tz, bin_minutes=bin_minutes or 60, opening=opening, until=until
+    )
+
+
+def grid(headers: list[str], body: list[list[str]]) -> list[str]:
+    """Fixed-width lines: the first column left-aligned, the others right-aligned."""
+    widths = [max(len(h), *(len(r[i]) for r in body)) for i, h in enumerate(headers)]
+
+    def line(cells: list[str]) -> str:
+        return "  ".join(
+            c.rjust(w) if i else c.ljust(w)
+            for i, (c, w) in enumerate(zip(cells, widths, strict=True))
+        )
+
+    return [line(headers), *(line(cells) for cells in body)]
