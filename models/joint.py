@@ -100,16 +100,7 @@ def fit_joint(data: JointData, spec: ModelSpec, *, options: FitOptions | None = 
     from models.build import build_joint_model
 
     options = options or FitOptions()
-    idata, timings = sample_model(
-        build_joint_model(data, spec),
-        draws=options.draws,
-        tune=options.tune,
-        chains=options.chains,
-        seed=options.seed,
-        sampler=options.sampler,
-        target_accept=options.target_accept,
-        progressbar=options.progressbar,
-    )
+    idata, timings = sample_model(build_joint_model(data, spec), **options.sampling())
     diagnostics = check_diagnostics(idata, thresholds=options.thresholds)
     return JointFit(idata, diagnostics, data, spec, options.seed, timings)
 

@@ -31,6 +31,18 @@ class FitOptions:
     thresholds: GateThresholds = field(default_factory=GateThresholds)
     keep_full_posterior: bool = True
 
+    def sampling(self) -> dict[str, Any]:
+        """The options the sampler takes, as keyword arguments."""
+        return {
+            "draws": self.draws,
+            "tune": self.tune,
+            "chains": self.chains,
+            "seed": self.seed,
+            "sampler": self.sampler,
+            "target_accept": self.target_accept,
+            "progressbar": self.progressbar,
+        }
+
 
 @dataclass(frozen=True)
 class PublishOutcome:
@@ -60,18 +72,7 @@ def fit_and_publish(
     """
     options = options or FitOptions()
     data = make_model_data(binned, spec)
-    fit = fit_model(
-        data,
-        spec,
-        draws=options.draws,
-        tune=options.tune,
-        chains=options.chains,
-        seed=options.seed,
-        sampler=options.sampler,
-        target_accept=options.target_accept,
-        progressbar=options.progressbar,
-        thresholds=options.thresholds,
-    )
+    fit = fit_model(data, spec, thresholds=options.thresholds, **options.sampling())
     if not fit.diagnostics.ok and not force:
         raise FitRejected(
             f"fit of series {series!r} failed the diagnostics gate and was not published "
