@@ -13,6 +13,7 @@ import numpy as np
 import pymc as pm
 import pytensor.tensor as pt
 
+from models.bases import annual_basis, within_day_basis, year_phase
 from models.design import ModelData
 from models.spec import ModelSpec
 
@@ -23,7 +24,8 @@ __all__ = ["build_joint_model", "build_model"]
 
 
 def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
-    """Build the log-rate model with named dims ``dow``, ``slot``, ``day`` and ``bin``.
+    """Build the log-rate model with named dims ``dow``, ``slot``, ``day`` and ``bin`` (and
+    ``annual_term`` / ``within_term`` when those terms are on).
 
     Counts are Poisson given the rate, or negative binomial (mean ``mu``, variance
     ``mu + mu**2 / dispersion[slot]``, deterministic ``dispersion`` with dims ``slot``) when
@@ -90,6 +92,26 @@ def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
         if spec.holidays is not None:
             holiday_effect = pm.Normal("holiday_effect", mu=0.0, sigma=priors.holiday_sigma)
             log_rate = log_rate + holiday_effect * feats.holiday
+        if spec.annual_harmonics:
+            annual = pm.Normal("annual", 0.0, priors.annual_sigma, dims="annual_term")
+            # One value per history day, gathered to the bins (keeps the graph's constants small).
+            days = np.datetime64(data.calendar.first_day, "D") + np.arange(data.n_days)
+            basis = annual_basis(year_phase(days), spec.annual_harmonics)
+            log_rate = log_rate + _columns_times(basis, annual)[feats.day]
+        if spec.within_day:
+            # Non-centred: a day's shape weights are informed by that day's bins only.
+            within_sd = pm.HalfNormal(
+                "within_day_sd", sigma=priors.within_day_scale, dims="within_term"
+            )
+            within_raw = pm.Normal("within_day_raw", 0.0, 1.0, dims=("day", "within_term"))
+            within = pm.Deterministic(
+                "within_day", within_raw * within_sd[None, :], dims=("day", "within_term")
+            )
+            # The (day, slot) table of shape deviations, gathered to the bins.
+            basis = within_day_basis(spec.slots_per_day, spec.within_day)
+            table = _columns_times(basis[None, :, :], within.T[:, :, None])
+            cell = feats.day * spec.slots_per_day + feats.slot
+            log_rate = log_rate + table.ravel()[cell]
         if spec.latent_daily:
             rho = pm.Beta("latent_rho", alpha=3.0, beta=2.0)
             latent_sd = pm.HalfNormal("latent_sd", sigma=priors.latent_scale)
@@ -140,6 +162,18 @@ def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
         else:
             pm.Poisson("arrivals", mu=mean, observed=data.count, dims="bin")
     return model
+
+
+def _columns_times(basis: np.ndarray, weights: pt.TensorVariable) -> pt.TensorVariable:
+    """``sum_j basis[..., j] * weights[j]``, as elementwise products one term at a time.
+
+    Written out rather than as a matrix product, which PyTensor would hand to BLAS (which pip
+    installs lack). ``weights[j]`` broadcasts against ``basis[..., j]``.
+    """
+    total = basis[..., 0] * weights[0]
+    for j in range(1, basis.shape[-1]):
+        total = total + basis[..., j] * weights[j]
+    return total
 
 
 def _ar1_from_innovations(

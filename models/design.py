@@ -13,6 +13,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from models.bases import year_phase
 from models.binning import DAY_NAMES, BinnedSeries, local_features
 from models.exceptions import InputError
 from models.spec import HolidayCalendar, ModelSpec
@@ -35,7 +36,8 @@ def slot_labels(bin_minutes: int) -> list[str]:
 
 @dataclass(frozen=True)
 class BinFeatures:
-    """Model coordinates of a set of bins (all arrays have one entry per bin)."""
+    """Model coordinates of a set of bins (all arrays have one entry per bin; ``phase`` is the
+    phase in the year of :func:`models.bases.year_phase`)."""
 
     dow: np.ndarray
     slot: np.ndarray
@@ -44,6 +46,7 @@ class BinFeatures:
     years: np.ndarray
     holiday: np.ndarray
     date: np.ndarray
+    phase: np.ndarray
 
 
 @dataclass(frozen=True)
@@ -80,7 +83,7 @@ class Calendar:
             flags = self.holidays.is_holiday([d.astype(dt.date) for d in unique])
             marked = unique[np.asarray(flags, dtype=bool)]
             holiday = np.isin(date, marked).astype(float)
-        return BinFeatures(dow, slot, day, minute, years, holiday, date)
+        return BinFeatures(dow, slot, day, minute, years, holiday, date, year_phase(date))
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready form (the holiday calendar lives in the spec)."""
@@ -154,6 +157,12 @@ def make_model_data(binned: BinnedSeries, spec: ModelSpec) -> ModelData:
         "slot": slot_labels(binned.bin_minutes),
         "day": [(binned.first_day + dt.timedelta(days=k)).isoformat() for k in range(n_days)],
     }
+    if spec.annual_harmonics:
+        coords["annual_term"] = [
+            f"{kind}{k}" for k in range(1, spec.annual_harmonics + 1) for kind in ("sin", "cos")
+        ]
+    if spec.within_day:
+        coords["within_term"] = [f"cos{k}" for k in range(1, spec.within_day + 1)]
     return ModelData(
         calendar=calendar,
         count=binned.count,

@@ -66,6 +66,11 @@ def make_joint_data(histories: dict[str, BinnedSeries], spec: ModelSpec) -> Join
         raise InputError(
             f"observation {spec.observation!r} is not available for joint fits yet; allowed: 'poisson'"
         )
+    if spec.annual_harmonics or spec.within_day:
+        raise InputError(
+            f"annual_harmonics={spec.annual_harmonics} and within_day={spec.within_day}: the "
+            "annual and within-day terms are not available for joint fits yet; set both to 0"
+        )
     names = tuple(check_series_name(n) for n in histories)
     zones = {h.tz for h in histories.values()}
     widths = {h.bin_minutes for h in histories.values()}

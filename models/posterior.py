@@ -29,7 +29,9 @@ _ARRAYS = ("week_log_rate", "trend", "holiday_effect", "latent", "latent_rho", "
 #: Future days of latent path simulated once per loaded version (queries beyond extend it).
 _CACHED_FUTURE_DAYS = 401
 #: Arrays only some models have; a store written before they existed simply lacks them.
-_OPTIONAL_ARRAYS = ("dispersion",)
+_OPTIONAL_ARRAYS = ("dispersion", "annual", "within_day", "within_day_sd")
+# Keeps the future within-day weights apart from the other seeded streams.
+_WITHIN_STREAM = 0x7368617065
 
 
 @dataclass(frozen=True)
@@ -53,6 +55,12 @@ class CompactPosterior:
     dispersion
         ``(draw, slot)`` negative binomial dispersion k (gamma noise shape) of each slot of the
         day for ``spec.observation == "negbin"``; None for a Poisson model.
+    annual
+        ``(draw, annual_term)`` Fourier coefficients of the annual season, or None without one.
+    within_day, within_day_sd
+        ``(draw, day, within_term)`` within-day shape weights of the history days and
+        ``(draw, within_term)`` their sds, or None without the term. Future days draw their
+        weights from Normal(0, sd) with a generator seeded by :attr:`seed` and the day index.
     """
 
     week_log_rate: np.ndarray
@@ -66,6 +74,9 @@ class CompactPosterior:
     opening: OpeningHours | None
     seed: int
     dispersion: np.ndarray | None = None
+    annual: np.ndarray | None = None
+    within_day: np.ndarray | None = None
+    within_day_sd: np.ndarray | None = None
 
     @property
     def n_draws(self) -> int:
@@ -106,6 +117,32 @@ class CompactPosterior:
         if last_day >= path.shape[0]:
             path = _extend_latent(self, last_day + 1)
         return path[: last_day + 1]
+
+    def within_by_day(self, days: np.ndarray) -> np.ndarray:
+        """Within-day shape weights of day indices ``days``, ``(len(days), within_term, draw)``.
+
+        History days come from the fit; a later day gets Normal(0, sd) weights from a generator
+        seeded by :attr:`seed` and the day index, so every query sees the same future.
+        """
+        if self.within_day is None or self.within_day_sd is None:
+            raise CorruptArtefact("this posterior has no within-day term")
+        known = _cached(
+            self,
+            "within_by_day",
+            lambda: np.ascontiguousarray(
+                np.transpose(np.asarray(self.within_day, dtype=np.float64), (1, 2, 0))
+            ),
+        )
+        days = np.asarray(days, dtype=np.int64)
+        out = np.empty((len(days), known.shape[1], self.n_draws))
+        past = days < self.n_days
+        out[past] = known[days[past]]
+        sd = np.asarray(self.within_day_sd, dtype=np.float64).T
+        for j in np.flatnonzero(~past):
+            entropy = [self.seed, _WITHIN_STREAM, int(days[j])]
+            rng = np.random.Generator(np.random.PCG64(np.random.SeedSequence(entropy)))
+            out[j] = sd * rng.standard_normal(sd.shape)
+        return out
 
     @property
     def week_by_cell(self) -> np.ndarray:
@@ -210,6 +247,22 @@ class CompactPosterior:
             # An infinite dispersion is a Poisson bin, so only NaN, zero and negatives are bad.
             if not np.all(self.dispersion > 0):
                 raise CorruptArtefact("array dispersion holds values that are not > 0")
+        terms = {
+            "annual": ((d, 2 * self.spec.annual_harmonics), self.spec.annual_harmonics),
+            "within_day": ((d, self.n_days, self.spec.within_day), self.spec.within_day),
+            "within_day_sd": ((d, self.spec.within_day), self.spec.within_day),
+        }
+        for name, (shape, wanted) in terms.items():
+            value = getattr(self, name)
+            if not wanted:
+                if value is not None:
+                    raise CorruptArtefact(f"array {name} is present but the spec has no such term")
+                continue
+            if value is None or value.shape != shape:
+                found = None if value is None else value.shape
+                raise CorruptArtefact(f"array {name} has shape {found}, expected {shape}")
+            if not np.isfinite(value).all():
+                raise CorruptArtefact(f"array {name} holds non-finite values")
 
 
 #: Versions whose derived arrays (float64 draws, bin table, latent path; a few MB each) are kept.
@@ -254,6 +307,7 @@ class BinTable:
     years: np.ndarray
     holiday: np.ndarray
     open_share: np.ndarray
+    phase: np.ndarray
 
     @classmethod
     def build(
@@ -269,7 +323,9 @@ class BinTable:
             )
         starts = grid.as_unit("ns").asi8
         edges = np.append(starts, starts[-1] + calendar.bin_minutes * 60 * 10**9)
-        return cls(edges, feats.dow, feats.slot, feats.day, feats.years, feats.holiday, share)
+        return cls(
+            edges, feats.dow, feats.slot, feats.day, feats.years, feats.holiday, share, feats.phase
+        )
 
     def covers(self, lo: int, hi: int) -> bool:
         """Whether ``[lo, hi)`` (UTC ns) lies inside the table."""
@@ -348,6 +404,9 @@ def compact_from_fit(
         opening=opening,
         seed=seed,
         dispersion=dispersion,
+        annual=take("annual", ("annual_term",)) if spec.annual_harmonics else None,
+        within_day=take("within_day", ("day", "within_term")) if spec.within_day else None,
+        within_day_sd=take("within_day_sd", ("within_term",)) if spec.within_day else None,
     )
 
 

@@ -3,9 +3,11 @@
 For each posterior draw d the expected count in a window [a, b) is Λ_d = ∫_a^b λ_d(t) dt, with
 λ_d piecewise constant on the model's bins (a bin partly inside the window counts pro rata, closed
 hours count zero, daylight-saving days have 23 or 25 hours). Days after the history get latent
-deviations simulated forward from each draw's AR(1) with a fixed seed, so a query always gives the
-same answer from the same version. The predictive count is the mixture over draws of
-Poisson(Λ_d), summarised exactly by :mod:`models.mixture`.
+deviations simulated forward from each draw's AR(1) with a fixed seed (and, with the within-day
+term, shape weights drawn per day from a generator seeded by the day), so a query always gives the
+same answer from the same version. The annual season, if any, is a smooth function of the date.
+The predictive count is the mixture over draws of Poisson(Λ_d), summarised exactly by
+:mod:`models.mixture`.
 
 A negative binomial model (``spec.observation == "negbin"``) is the same Poisson mixture with
 one more factor inside Λ_d: each bin's rate is multiplied by Gamma(k_d, k_d) noise, k_d the
@@ -34,6 +36,7 @@ import numpy as np
 import pandas as pd
 from scipy import special
 
+from models.bases import annual_basis, within_day_basis
 from models.binning import check_zone, local_features
 from models.exceptions import InputError, WindowError
 from models.mixture import MixtureSummary, summarise
@@ -228,6 +231,12 @@ def _integrate_cluster(
     draws = posterior.as_float64
     trend = draws["trend"][None, :]
     holiday_effect = draws["holiday_effect"][None, :]
+    spec = posterior.spec
+    phase = table.phase[span]
+    if spec.annual_harmonics:
+        draws_annual = np.asarray(posterior.annual, dtype=np.float64).T  # (term, draw)
+    if spec.within_day:
+        within_basis = within_day_basis(spec.slots_per_day, spec.within_day)
     for b0 in range(0, len(edges), _BLOCK_BINS):
         b1 = min(b0 + _BLOCK_BINS, len(edges))
         block = slice(b0, b1)
@@ -237,8 +246,16 @@ def _integrate_cluster(
             + holiday[block, None] * holiday_effect
             + latent[day[block]]
         )
+        if spec.annual_harmonics:
+            log_rate += annual_basis(phase[block], spec.annual_harmonics) @ draws_annual
+        if spec.within_day:
+            days, first_row = np.unique(day[block], return_inverse=True)
+            weights = posterior.within_by_day(days)  # (day, term, draw)
+            shape = within_basis[slot[block]]  # (bin, term)
+            for term in range(spec.within_day):  # one (bin, draw) temporary at a time
+                log_rate += shape[:, term, None] * weights[first_row, term]
         per_bin = np.exp(log_rate) * (open_share[block] * bin_hours)[:, None]
-        if posterior.spec.observation == "negbin":
+        if spec.observation == "negbin":
             per_bin *= _bin_noise(posterior, edges[block] // bin_ns, slot[block]).T
         before = offset[None, :] + np.cumsum(per_bin, axis=0) - per_bin
         here = np.flatnonzero((index >= b0) & (index < b1))

@@ -6,11 +6,15 @@ in each version's manifest (``to_dict``/``from_dict``) so a forecast knows what 
 The log arrival rate per hour in a bin starting at local time t is::
 
     log λ(t) = α + β_dow[d(t)] + β_slot[s(t)] + β_dow×slot[d(t), s(t)]
-             + γ · years(t) + η · holiday(t) + z[day(t)]
+             + γ · years(t) + η · holiday(t) + Σ_j a_j f_j(phase(t))
+             + z[day(t)] + Σ_j w[day(t), j] g_j(s(t))
 
 with day-of-week, slot-of-day and interaction effects summing to zero (each block with a learned
-scale), a linear trend, a holiday effect, and a latent daily AR(1) deviation
-z[k] = ρ z[k-1] + σ_z ε[k] (a discretised log-Gaussian Cox process).
+scale), a linear trend, a holiday effect, an optional annual season (Fourier pairs f_j of the
+phase in the year), a latent daily AR(1) deviation z[k] = ρ z[k-1] + σ_z ε[k] (a discretised
+log-Gaussian Cox process) and an optional latent deviation of each day's *shape*: smooth cosines
+g_j over the day (:mod:`models.bases`) with independent Normal(0, σ_j) weights per day, so a day
+can run busy in the morning and quiet in the evening beyond what its level says.
 """
 
 from __future__ import annotations
@@ -21,7 +25,15 @@ from typing import Any
 
 from models.exceptions import InputError
 
-__all__ = ["BIN_MINUTES", "OBSERVATIONS", "HolidayCalendar", "ModelSpec", "Priors"]
+__all__ = [
+    "BIN_MINUTES",
+    "MAX_ANNUAL_HARMONICS",
+    "MAX_WITHIN_DAY",
+    "OBSERVATIONS",
+    "HolidayCalendar",
+    "ModelSpec",
+    "Priors",
+]
 
 #: Allowed observation models: ``poisson`` counts given the rate, or ``negbin`` (gamma-Poisson:
 #: each bin's rate is further multiplied by independent Gamma(k, k) noise, k the dispersion).
@@ -29,6 +41,10 @@ OBSERVATIONS: tuple[str, ...] = ("poisson", "negbin")
 #: Allowed bin widths in minutes; 1440 is a whole day (for daily counts, in a zone without
 #: daylight saving, where the time-of-day terms have nothing to describe and are left out).
 BIN_MINUTES: tuple[int, ...] = (15, 30, 60, 1440)
+#: Most Fourier pairs of the annual season (more resolves features shorter than a month).
+MAX_ANNUAL_HARMONICS = 12
+#: Most within-day shape terms (and never more than half the slots of a day).
+MAX_WITHIN_DAY = 8
 
 
 @dataclass(frozen=True)
@@ -51,6 +67,10 @@ class Priors:
         Sd of the holiday effect on the log rate.
     latent_scale
         Half-normal prior scale of the daily latent deviation's innovation sd.
+    annual_sigma
+        Sd of each annual Fourier coefficient on the log rate (0.1: seasons of about ±10%).
+    within_day_scale
+        Half-normal prior scale of the sd of each within-day shape weight.
     overdispersion_median, overdispersion_log_sd
         Negative binomial observation: the coefficient of variation of the per-bin gamma noise,
         ``1 / sqrt(dispersion)``, has a log-normal prior with this median and log-scale sd
@@ -67,6 +87,8 @@ class Priors:
     trend_sigma: float = 0.5
     holiday_sigma: float = 1.0
     latent_scale: float = 0.2
+    annual_sigma: float = 0.1
+    within_day_scale: float = 0.2
     overdispersion_median: float = 0.2
     overdispersion_log_sd: float = 1.0
     overdispersion_slot_scale: float = 0.5
@@ -141,6 +163,13 @@ class ModelSpec:
     more than daytime hours (docs/calibration.md). ``bin_minutes=1440`` models daily counts; the
     time-of-day terms are then left out.
 
+    ``annual_harmonics`` (0 = off) adds an annual season with that many Fourier pairs; it needs
+    about two years of history to tell the season from the level and trend. ``within_day``
+    (0 = off) adds that many smooth within-day shape deviations per day (3 is a good start for
+    hourly bins): days then differ in shape as well as level, forecasts of multi-hour windows carry
+    that extra spread, and an intraday update learns today's shape from the morning
+    (:mod:`models.intraday`).
+
     Examples
     --------
     >>> spec = ModelSpec(bin_minutes=30, trend=False)
@@ -162,6 +191,8 @@ class ModelSpec:
     priors: Priors = field(default_factory=Priors)
     observation: str = "poisson"
     dispersion_by_slot: bool = True
+    annual_harmonics: int = 0
+    within_day: int = 0
 
     def __post_init__(self) -> None:
         if self.bin_minutes not in BIN_MINUTES:
@@ -174,6 +205,22 @@ class ModelSpec:
             )
         if self.interaction and not (self.day_of_week and self.time_of_day):
             raise InputError("the day-of-week x time-of-day interaction needs both main effects on")
+        if not 0 <= self.annual_harmonics <= MAX_ANNUAL_HARMONICS:
+            raise InputError(
+                f"annual_harmonics {self.annual_harmonics!r} must be a whole number from 0 (off) "
+                f"to {MAX_ANNUAL_HARMONICS}"
+            )
+        limit = min(self.slots_per_day // 2, MAX_WITHIN_DAY)
+        if self.within_day and limit == 0:
+            raise InputError(
+                f"within_day {self.within_day!r}: whole-day bins have no shape within the day; "
+                "use 0 (off)"
+            )
+        if not 0 <= self.within_day <= limit:
+            raise InputError(
+                f"within_day {self.within_day!r} must be 0 (off) or a whole number from 1 to "
+                f"{limit} for {self.bin_minutes}-minute bins"
+            )
 
     @property
     def slots_per_day(self) -> int:

@@ -34,9 +34,23 @@ def synthetic_posterior(
     latent_last: float = 0.0,
     trend: float = 0.0,
     seed: int = 5,
+    annual: np.ndarray | None = None,
+    within_day: np.ndarray | None = None,
+    within_day_sd: np.ndarray | None = None,
 ) -> CompactPosterior:
-    """A posterior whose every draw has the weekly rate table ``week_rate`` (7 x slots, per hour)."""
-    spec = ModelSpec(bin_minutes=bin_minutes, latent_daily=latent_sd > 0, trend=trend != 0)
+    """A posterior whose every draw has the weekly rate table ``week_rate`` (7 x slots, per hour).
+
+    ``annual`` (Fourier coefficients), ``within_day`` (``(day, term)`` shape weights of the
+    history days) and ``within_day_sd`` (``(term,)``) are shared by every draw.
+    """
+    terms = 0 if within_day_sd is None else len(within_day_sd)
+    spec = ModelSpec(
+        bin_minutes=bin_minutes,
+        latent_daily=latent_sd > 0,
+        trend=trend != 0,
+        annual_harmonics=0 if annual is None else len(annual) // 2,
+        within_day=terms,
+    )
     week = np.broadcast_to(np.log(week_rate), (draws, 7, spec.slots_per_day)).astype(np.float32)
     latent = np.zeros((draws, n_days), dtype=np.float32)
     latent[:, -1] = latent_last
@@ -56,6 +70,16 @@ def synthetic_posterior(
         spec=spec,
         opening=opening,
         seed=seed,
+        annual=None if annual is None else np.tile(np.float32(annual), (draws, 1)),
+        within_day=(
+            None
+            if not terms
+            else np.broadcast_to(
+                np.zeros((n_days, terms)) if within_day is None else within_day,
+                (draws, n_days, terms),
+            ).astype(np.float32)
+        ),
+        within_day_sd=None if not terms else np.tile(np.float32(within_day_sd), (draws, 1)),
     )
 
 

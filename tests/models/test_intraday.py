@@ -240,3 +240,138 @@ class TestBadInputs:
         )
         with pytest.raises(InputError, match="impossible under every posterior draw"):
             update_forecast(closed, *hours(TODAY, 2, 3), [5], *self.forecast_hour())
+
+
+SHAPE_SD = 0.3
+
+
+def shape_factor(hour: int) -> float:
+    """The first within-day cosine at an hourly slot (definition written out here)."""
+    return math.sqrt(2.0) * math.cos(math.pi * (hour + 0.5) / 24)
+
+
+@pytest.fixture
+def shaped_posterior(weekly_table: np.ndarray):
+    return synthetic_posterior(
+        weekly_table,
+        draws=4000,
+        latent_rho=RHO,
+        latent_sd=SD,
+        latent_last=LAST,
+        within_day_sd=np.array([SHAPE_SD]),
+    )
+
+
+class TestWithShape:
+    def test_matches_two_dimensional_quadrature(self, shaped_posterior, weekly_table):
+        # Reference: scipy.integrate.dblquad of the exact posterior of today's (level z, shape
+        # weight c): prior N(PRIOR_MEAN, PRIOR_VAR) x N(0, SHAPE_SD^2), Poisson counts with mean
+        # table[h] exp(z + c g(h)) in the observed hours. Checked: E[z], E[c] and the updated
+        # mean of 14:00-18:00.
+        observed = list(range(6, 12))
+        counts = np.array([12, 14, 19, 25, 30, 33])
+        table = weekly_table[1]  # Tuesday
+        later = list(range(14, 18))
+
+        def log_post(z: float, c: float) -> float:
+            rates = np.array([table[h] * math.exp(z + c * shape_factor(h)) for h in observed])
+            return float(
+                (counts * np.log(rates) - rates).sum()
+                - 0.5 * (z - PRIOR_MEAN) ** 2 / PRIOR_VAR
+                - 0.5 * c**2 / SHAPE_SD**2
+            )
+
+        peak = max(log_post(z, c) for z in np.linspace(-1, 1.5, 51) for c in np.linspace(-1, 1, 41))
+
+        def moment(f):
+            value, _ = integrate.dblquad(
+                lambda c, z: f(z, c) * math.exp(log_post(z, c) - peak),
+                PRIOR_MEAN - 8 * math.sqrt(PRIOR_VAR),
+                PRIOR_MEAN + 8 * math.sqrt(PRIOR_VAR),
+                -8 * SHAPE_SD,
+                8 * SHAPE_SD,
+                epsabs=1e-10,
+                epsrel=1e-8,
+            )
+            return value
+
+        norm = moment(lambda z, c: 1.0)
+        mean_z = moment(lambda z, c: z) / norm
+        mean_c = moment(lambda z, c: c) / norm
+        mean_later = (
+            moment(lambda z, c: sum(table[h] * math.exp(z + c * shape_factor(h)) for h in later))
+            / norm
+        )
+
+        result = update_forecast(
+            shaped_posterior,
+            *hours(TODAY, observed[0], observed[-1] + 1),
+            counts,
+            *(stamps(f"{TODAY}T14:00"), stamps(f"{TODAY}T18:00")),
+        )
+        assert result.latent is not None and result.shape is not None
+        n = result.lam.shape[0]
+        assert result.latent.mean() == pytest.approx(mean_z, abs=4 * result.latent.std() / n**0.5)
+        assert result.shape[:, 0].mean() == pytest.approx(
+            mean_c, abs=4 * result.shape[:, 0].std() / n**0.5
+        )
+        lam = result.lam[:, 0]
+        assert lam.mean() == pytest.approx(mean_later, abs=4 * lam.std() / n**0.5)
+
+    def test_a_busy_morning_is_read_partly_as_shape(self, shaped_posterior, weekly_table):
+        # A morning 60% above its forecast in every hour: the level alone would carry all of it
+        # to the evening. With the shape term part of it goes to the first cosine (positive in
+        # the morning, negative in the evening), so the evening rises, but less.
+        morning = hours(TODAY, 6, 12)
+        evening = hours(TODAY, 18, 22)
+        counts = np.round(expected_counts(shaped_posterior, *morning).mean(axis=0) * 1.6)
+        level_only = synthetic_posterior(
+            weekly_table, draws=4000, latent_rho=RHO, latent_sd=SD, latent_last=LAST
+        )
+        with_shape = update_forecast(shaped_posterior, *morning, counts, *evening, seed=3)
+        alone = update_forecast(level_only, *morning, counts, *evening, seed=3)
+        before = expected_counts(shaped_posterior, *evening).mean(axis=0).sum()
+        rise_with_shape = with_shape.lam.mean(axis=0).sum() / before
+        rise_alone = (
+            alone.lam.mean(axis=0).sum() / expected_counts(level_only, *evening).mean(0).sum()
+        )
+        assert with_shape.shape is not None and with_shape.shape[:, 0].mean() > 0.05
+        assert 1.0 < rise_with_shape < rise_alone - 0.05
+
+    def test_same_seed_same_answer(self, shaped_posterior):
+        morning = hours(TODAY, 6, 10)
+        later = hours(TODAY, 12, 16)
+        counts = np.array([5, 6, 9, 12])
+        one = update_forecast(shaped_posterior, *morning, counts, *later, seed=5)
+        two = update_forecast(shaped_posterior, *morning, counts, *later, seed=5)
+        np.testing.assert_array_equal(one.lam, two.lam)
+        assert 0 < one.effective_sample_size <= shaped_posterior.n_draws
+
+    def test_updated_afternoons_score_better_on_simulated_days(self, weekly_table):
+        # Days simulated from the model itself (level and shape drawn from their priors).
+        posterior = synthetic_posterior(
+            weekly_table,
+            draws=300,
+            latent_rho=RHO,
+            latent_sd=SD,
+            latent_last=LAST,
+            within_day_sd=np.array([SHAPE_SD, 0.15]),
+        )
+        morning, afternoon = hours(TODAY, 0, 12), hours(TODAY, 12, 20)
+        before = expected_counts(posterior, *afternoon)
+        rng = np.random.default_rng(2027)
+        g = np.array(
+            [
+                [math.sqrt(2) * math.cos(math.pi * k * (h + 0.5) / 24) for k in (1, 2)]
+                for h in range(24)
+            ]
+        )
+        scores_before, scores_after = [], []
+        for replicate in range(40):
+            level = rng.normal(PRIOR_MEAN, math.sqrt(PRIOR_VAR))
+            weights = rng.normal(0.0, [SHAPE_SD, 0.15])
+            counts = rng.poisson(weekly_table[1] * np.exp(level + g @ weights))
+            result = update_forecast(posterior, *morning, counts[:12], *afternoon, seed=replicate)
+            scores_before.append(crps_poisson_mixture(counts[12:20], before).mean())
+            scores_after.append(crps_poisson_mixture(counts[12:20], result.lam).mean())
+        assert np.mean(scores_after) < 0.85 * np.mean(scores_before)

@@ -239,3 +239,126 @@ class TestDerivedArrayCache:
         assert len(posterior_module._cache) <= posterior_module.CACHED_VERSIONS
         # The first posterior's arrays were evicted and are rebuilt to the same answer.
         np.testing.assert_array_equal(expected_counts(first, *one), before)
+
+
+def shaped_reference(
+    table: np.ndarray,
+    start: str,
+    end: str,
+    *,
+    annual: np.ndarray | None = None,
+    within: dict[dt.date, np.ndarray] | None = None,
+    tz: str = CHICAGO,
+) -> float:
+    """As :func:`reference_integral`, with the annual season and within-day shape computed here
+    from their definitions (phase = days since 1970-01-01 / 365.2425; shape
+    sqrt(2) cos(pi k (h + 1/2) / 24)) through datetime and math, not the project's bases."""
+    zone = ZoneInfo(tz)
+    a = dt.datetime.fromisoformat(start).timestamp()
+    b = dt.datetime.fromisoformat(end).timestamp()
+
+    def rate_per_second(t: float) -> float:
+        local = dt.datetime.fromtimestamp(t, zone)
+        log_rate = np.log(table[local.weekday(), local.hour])
+        if annual is not None:
+            u = (local.date() - dt.date(1970, 1, 1)).days / 365.2425
+            for k in range(1, len(annual) // 2 + 1):
+                log_rate += annual[2 * k - 2] * np.sin(2 * np.pi * k * u)
+                log_rate += annual[2 * k - 1] * np.cos(2 * np.pi * k * u)
+        if within is not None and local.date() in within:
+            for k, w in enumerate(within[local.date()], start=1):
+                log_rate += w * np.sqrt(2) * np.cos(np.pi * k * (local.hour + 0.5) / 24)
+        return float(np.exp(log_rate)) / 3600.0
+
+    cuts = np.unique(np.concatenate([[a, b], np.arange(np.ceil(a / 3600) * 3600, b, 3600)]))
+    return sum(
+        integrate.quad(rate_per_second, lo, hi, limit=200)[0] for lo, hi in itertools.pairwise(cuts)
+    )
+
+
+class TestSeasonAndShape:
+    # Reference: scipy.integrate.quad of the rate written out from the model's definitions.
+    @pytest.mark.parametrize(
+        ("start", "end"),
+        [
+            ("2026-02-10T09:10-06:00", "2026-02-10T12:47-06:00"),
+            ("2026-03-07T22:15-06:00", "2026-03-08T05:40-05:00"),  # across DST start
+            ("2026-08-20T00:00-05:00", "2026-08-23T00:00-05:00"),  # far from history
+        ],
+    )
+    def test_annual_season_matches_quad(self, weekly_table, start, end) -> None:
+        annual = np.array([0.2, -0.1, 0.05, 0.03])
+        posterior = synthetic_posterior(weekly_table, annual=annual)
+        lam = expected_counts(posterior, *windows((start, end)))[0, 0]
+        assert lam == pytest.approx(
+            shaped_reference(weekly_table, start, end, annual=annual), rel=1e-6
+        )
+
+    def test_history_day_shape_matches_quad(self, weekly_table) -> None:
+        first, n_days = dt.date(2026, 2, 2), 28
+        weights = np.zeros((n_days, 2))
+        weights[8] = (0.4, -0.2)  # 2026-02-10
+        weights[9] = (-0.3, 0.1)
+        posterior = synthetic_posterior(
+            weekly_table, within_day=weights, within_day_sd=np.array([0.3, 0.1])
+        )
+        start, end = "2026-02-10T06:30-06:00", "2026-02-11T14:15-06:00"
+        lam = expected_counts(posterior, *windows((start, end)))[0, 0]
+        shapes = {
+            first + dt.timedelta(days=8): weights[8],
+            first + dt.timedelta(days=9): weights[9],
+        }
+        assert lam == pytest.approx(
+            shaped_reference(weekly_table, start, end, within=shapes), rel=1e-6
+        )
+
+    def test_future_shape_weights_follow_their_prior(self) -> None:
+        # log λ of hour h on a future day is sum_k w_k g_k(h), w_k ~ N(0, sd_k) independently:
+        # variance sum_k sd_k^2 g_k(h)^2 (normal algebra, common practice, no source).
+        sd, draws = np.array([0.3, 0.1]), 40_000
+        posterior = synthetic_posterior(np.ones((7, 24)), draws=draws, within_day_sd=sd)
+        day = posterior.history_end + dt.timedelta(days=2)
+        hours = [7, 19]
+        starts = pd.DatetimeIndex(
+            [pd.Timestamp(day).tz_localize(CHICAGO) + pd.Timedelta(hours=h) for h in hours]
+        )
+        z = np.log(expected_counts(posterior, starts, starts + pd.Timedelta(hours=1)))
+        for j, h in enumerate(hours):
+            g = np.sqrt(2) * np.cos(np.pi * np.arange(1, 3) * (h + 0.5) / 24)
+            var = float(np.sum(sd**2 * g**2))
+            assert z[:, j].mean() == pytest.approx(0.0, abs=4 * np.sqrt(var / draws))
+            assert z[:, j].var() == pytest.approx(var, rel=0.03)
+        # Morning and evening of one day move against each other through the first cosine.
+        assert np.corrcoef(z[:, 0], z[:, 1])[0, 1] < -0.5
+
+    def test_future_shape_is_the_same_in_every_query(self) -> None:
+        posterior = synthetic_posterior(
+            np.ones((7, 24)), draws=20, within_day_sd=np.array([0.3, 0.2, 0.1])
+        )
+        start = pd.Timestamp(posterior.history_end).tz_localize(CHICAGO) + pd.Timedelta(days=3)
+        one = expected_counts(
+            posterior, pd.DatetimeIndex([start]), pd.DatetimeIndex([start + pd.Timedelta(hours=1)])
+        )
+        wide = pd.DatetimeIndex([start - pd.Timedelta(days=2), start])
+        two = expected_counts(posterior, wide, wide + pd.Timedelta(hours=1))
+        np.testing.assert_array_equal(one[:, 0], two[:, 1])
+
+    def test_terms_survive_serialisation_and_bad_shapes_are_refused(self, weekly_table) -> None:
+        from models.exceptions import CorruptArtefact
+        from models.posterior import CompactPosterior
+
+        posterior = synthetic_posterior(
+            weekly_table, draws=4, annual=np.array([0.1, 0.2]), within_day_sd=np.array([0.3])
+        )
+        again = CompactPosterior.from_bytes(posterior.to_bytes(), posterior.meta())
+        np.testing.assert_array_equal(again.annual, posterior.annual)
+        np.testing.assert_array_equal(again.within_day, posterior.within_day)
+        np.testing.assert_array_equal(again.within_day_sd, posterior.within_day_sd)
+        import dataclasses
+
+        broken = dataclasses.replace(posterior, within_day=posterior.within_day[:, :5])
+        with pytest.raises(CorruptArtefact, match="within_day has shape"):
+            broken.check_shapes()
+        stray = dataclasses.replace(posterior, spec=posterior.spec.with_(annual_harmonics=0))
+        with pytest.raises(CorruptArtefact, match="annual is present"):
+            stray.check_shapes()
