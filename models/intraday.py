@@ -82,6 +82,8 @@ _MAX_WIDENINGS = 12
 _PROPOSALS = 64
 _PROPOSAL_WIDEN = 1.3
 _SCORING_STEPS = 50
+# Beyond this a negative binomial dispersion is a Poisson count (as in models.predict).
+_POISSON_K = 1e8
 
 
 @dataclass(frozen=True)
@@ -395,8 +397,8 @@ def update_forecast(
     else:
         m, v = np.zeros(draws), np.zeros(draws)
     random = v > 0
-    if posterior.spec.within_day:
-        return _update_with_shape(
+    if posterior.spec.within_day or posterior.spec.observation == "negbin":
+        return _update_by_sampling(
             posterior,
             observed_starts,
             observed_ends,
@@ -473,14 +475,22 @@ def _updated_windows(
 # --------------------------------------------------------------------------- with the shape term
 
 
-def _flat(posterior: CompactPosterior) -> CompactPosterior:
-    """The posterior with no daily level and no within-day shape: per-bin ``mu_d`` for today."""
+def _flat(posterior: CompactPosterior, *, noise: bool = True) -> CompactPosterior:
+    """The posterior with no daily level and no within-day shape: per-bin ``mu_d`` for today.
+
+    ``noise=False`` also drops the fixed per-bin gamma noise of a negative binomial series (the
+    observed bins' likelihood integrates their noise out instead).
+    """
+    spec = replace(posterior.spec, latent_daily=False, within_day=0)
+    if not noise:
+        spec = replace(spec, observation="poisson")
     return replace(
         posterior,
         latent=np.zeros_like(posterior.latent),
         within_day=None,
         within_day_sd=None,
-        spec=replace(posterior.spec, latent_daily=False, within_day=0),
+        dispersion=posterior.dispersion if noise else None,
+        spec=spec,
     )
 
 
@@ -506,40 +516,78 @@ def _pieces_by_bin(
         highs.append(np.minimum(edges[1:], hi))
         owner.append(np.full(len(edges) - 1, i, dtype=np.int64))
         slots.append(np.asarray(table.slot[span], dtype=np.int64))
-    to_index = lambda ns: pd.DatetimeIndex(np.concatenate(ns).astype("datetime64[ns]"), tz="UTC")  # noqa: E731
-    return to_index(lows), to_index(highs), np.concatenate(owner), np.concatenate(slots)
+
+    def stamps(parts: list[np.ndarray]) -> pd.DatetimeIndex:
+        return pd.DatetimeIndex(np.concatenate(parts).astype("datetime64[ns]"), tz="UTC")
+
+    return stamps(lows), stamps(highs), np.concatenate(owner), np.concatenate(slots)
+
+
+@dataclass(frozen=True)
+class _Observed:
+    """Today's observed windows cut into bin pieces, for the sampling update.
+
+    ``mu`` is ``(draw, piece)`` without level, shape or bin noise; ``design`` the ``(piece, p)``
+    rows ``(1, g_b)`` (or ``g_b`` alone, or ``1`` alone); ``owner`` the ``(piece, window)``
+    indicator; ``dispersion`` the ``(draw, piece)`` negative binomial k of each piece's slot, or
+    None for Poisson counts.
+    """
+
+    mu: FloatArray
+    design: FloatArray
+    owner: FloatArray
+    counts: FloatArray
+    dispersion: FloatArray | None
 
 
 def _log_likelihood(
-    x: FloatArray, mu: FloatArray, design: FloatArray, owner: FloatArray, counts: FloatArray
-) -> tuple[FloatArray, FloatArray, FloatArray]:
-    """Poisson log likelihood of today's counts (constants dropped), window means and pieces.
+    x: FloatArray, mu: FloatArray, obs: _Observed, dispersion: FloatArray | None
+) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
+    """Log likelihood of today's counts (terms free of the parameters dropped), per window.
 
-    ``x`` is ``(..., p)``, ``mu`` ``(..., piece)`` broadcasting against it, ``design`` the
-    ``(piece, p)`` rows ``(1, g_b)`` (or ``g_b`` alone without a level), ``owner`` the
-    ``(piece, window)`` indicator. Returns ``loglik (...)``, ``M (..., window)`` and the
-    piece means ``E (..., piece)``.
+    ``x`` is ``(..., p)`` and ``mu``, ``dispersion`` ``(..., piece)`` broadcasting against it.
+    A Poisson window has mean ``M = sum_j mu_j exp(a_j' x)``. A negative binomial window has
+    that mean and the dispersion matching its variance, ``k = M^2 / sum_j E_j^2 / k_j`` (exact
+    for a one-bin window; a moment match for longer ones). Returns the log likelihood ``(...)``,
+    and per window the mean ``M``, ``dl/dM`` and the Fisher information ``-E d2l/dM2``, plus the
+    piece means ``E``.
     """
     with np.errstate(over="ignore"):
-        pieces = mu * np.exp(x @ design.T)
-    means = pieces @ owner
+        pieces = mu * np.exp(x @ obs.design.T)
+    means = pieces @ obs.owner
+    y = obs.counts
     with np.errstate(divide="ignore", invalid="ignore"):
-        loglik = (special.xlogy(counts, means) - means).sum(axis=-1)
-    return np.where(np.isnan(loglik), -np.inf, loglik), means, pieces
+        if dispersion is None:
+            loglik = special.xlogy(y, means) - means
+            slope = np.where(means > 0, y / means - 1.0, -1.0)
+            info = np.where(means > 0, 1.0 / means, 0.0)
+        else:
+            k = means**2 / ((pieces**2 / dispersion) @ obs.owner)
+            k = np.where(np.isfinite(k) & (k > 0), k, _POISSON_K)
+            loglik = (
+                special.gammaln(y + k)
+                - special.gammaln(k)
+                + k * (np.log(k) - np.log(k + means))
+                + special.xlogy(y, means)
+                - special.xlogy(y, k + means)
+            )
+            slope = np.where(means > 0, k * (y - means) / (means * (means + k)), -1.0)
+            info = np.where(means > 0, k / (means * (means + k)), 0.0)
+    total = loglik.sum(axis=-1)
+    return np.where(np.isnan(total), -np.inf, total), slope, info, pieces
 
 
 def _laplace(
     prior_mean: FloatArray,
     prior_sd: FloatArray,
     mu: FloatArray,
-    design: FloatArray,
-    owner: FloatArray,
-    counts: FloatArray,
+    obs: _Observed,
+    dispersion: FloatArray | None,
 ) -> tuple[FloatArray, FloatArray]:
     """Mode (whitened ``u``, ``x = m + sd u``) and whitened Fisher precision per draw.
 
     Fisher scoring on ``-|u|^2 / 2 + loglik``, each step halved until the objective does not
-    fall; the Fisher information of a Poisson window mean ``M(x)`` is ``grad M grad M' / M``.
+    fall; a window mean ``M(x)`` contributes ``grad M grad M' * info``.
     """
     draws, dim = prior_mean.shape
     u = np.zeros((draws, dim))
@@ -547,20 +595,20 @@ def _laplace(
 
     def objective(u_: FloatArray) -> FloatArray:
         x = prior_mean + prior_sd * u_
-        return -0.5 * (u_**2).sum(axis=1) + _log_likelihood(x, mu, design, owner, counts)[0]
+        return -0.5 * (u_**2).sum(axis=1) + _log_likelihood(x, mu, obs, dispersion)[0]
+
+    def scoring(u_: FloatArray) -> tuple[FloatArray, FloatArray]:
+        x = prior_mean + prior_sd * u_
+        _, slope, info, pieces = _log_likelihood(x, mu, obs, dispersion)
+        # d M_i / d x = sum over the window's pieces of E_j a_j: (draw, window, p).
+        grad_mean = np.einsum("dj,jp,ji->dip", pieces, obs.design, obs.owner)
+        gradient = -u_ + prior_sd * np.einsum("di,dip->dp", slope, grad_mean)
+        fisher = np.einsum("dip,di,diq->dpq", grad_mean, info, grad_mean)
+        return gradient, eye + prior_sd[:, :, None] * fisher * prior_sd[:, None, :]
 
     current = objective(u)
     for _ in range(_SCORING_STEPS):
-        x = prior_mean + prior_sd * u
-        _, means, pieces = _log_likelihood(x, mu, design, owner, counts)
-        # d M_i / d x = sum over the window's pieces of E_j a_j: (draw, window, p).
-        slope = np.einsum("dj,jp,ji->dip", pieces, design, owner)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            ratio = np.where(means > 0, counts / means, 0.0)
-            inv_means = np.where(means > 0, 1.0 / means, 0.0)
-        gradient = -u + prior_sd * np.einsum("di,dip->dp", ratio - 1.0, slope)
-        info = np.einsum("dip,di,diq->dpq", slope, inv_means, slope)
-        precision = eye + prior_sd[:, :, None] * info * prior_sd[:, None, :]
+        gradient, precision = scoring(u)
         step = np.linalg.solve(precision, gradient[:, :, None])[:, :, 0]
         scale = np.ones(draws)
         for _ in range(30):
@@ -573,16 +621,10 @@ def _laplace(
         current = objective(u)
         if np.all(np.abs(scale[:, None] * step) <= 1e-9):
             break
-    x = prior_mean + prior_sd * u
-    _, means, pieces = _log_likelihood(x, mu, design, owner, counts)
-    slope = np.einsum("dj,jp,ji->dip", pieces, design, owner)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        inv_means = np.where(means > 0, 1.0 / means, 0.0)
-    info = np.einsum("dip,di,diq->dpq", slope, inv_means, slope)
-    return u, eye + prior_sd[:, :, None] * info * prior_sd[:, None, :]
+    return u, scoring(u)[1]
 
 
-def _update_with_shape(
+def _update_by_sampling(
     posterior: CompactPosterior,
     observed_starts: pd.DatetimeIndex,
     observed_ends: pd.DatetimeIndex,
@@ -597,31 +639,51 @@ def _update_with_shape(
 ) -> IntradayUpdate:
     """The importance-sampling update of ``(z, c)`` described in the module notes."""
     spec = posterior.spec
-    flat = _flat(posterior)
-    basis = within_day_basis(spec.slots_per_day, spec.within_day)
     o_starts, o_ends, o_owner, o_slot = _pieces_by_bin(posterior, observed_starts, observed_ends)
-    mu = expected_counts(flat, o_starts, o_ends, horizon_days=horizon_days)  # (draw, piece)
     owner = np.zeros((len(o_owner), len(counts)))
     owner[np.arange(len(o_owner)), o_owner] = 1.0
-    level = spec.latent_daily
-    design = np.column_stack([np.ones(len(o_slot)), basis[o_slot]]) if level else basis[o_slot]
-    shape_sd = np.asarray(posterior.within_day_sd, dtype=np.float64)
-    prior_mean = np.zeros((posterior.n_draws, design.shape[1]))
-    prior_sd = shape_sd
+    columns = []
+    level = spec.latent_daily and bool(np.any(level_var > 0))
+    if level:
+        columns.append(np.ones((len(o_slot), 1)))
+    if spec.within_day:
+        columns.append(within_day_basis(spec.slots_per_day, spec.within_day)[o_slot])
+    design = np.hstack(columns) if columns else np.zeros((len(o_slot), 0))
+    dispersion = None
+    if spec.observation == "negbin" and posterior.dispersion is not None:
+        dispersion = np.asarray(posterior.dispersion, dtype=np.float64)[:, o_slot]
+    obs = _Observed(
+        mu=expected_counts(
+            _flat(posterior, noise=False), o_starts, o_ends, horizon_days=horizon_days
+        ),
+        design=design,
+        owner=owner,
+        counts=counts.astype(np.float64),
+        dispersion=dispersion,
+    )
+    draws, dim = posterior.n_draws, design.shape[1]
+    prior_mean = np.zeros((draws, dim))
+    sds = []
     if level:
         prior_mean[:, 0] = level_mean
-        prior_sd = np.column_stack([np.sqrt(level_var), shape_sd])
-    y = counts.astype(np.float64)
+        sds.append(np.sqrt(level_var)[:, None])
+    if spec.within_day:
+        sds.append(np.asarray(posterior.within_day_sd, dtype=np.float64))
+    prior_sd = np.hstack(sds) if sds else np.zeros((draws, 0))
 
-    draws, dim = prior_mean.shape
     log_weight = np.empty((draws, _PROPOSALS))
     candidates = np.empty((draws, _PROPOSALS, dim))
     for b0 in range(0, draws, _DRAW_BLOCK):
         rows = slice(b0, min(b0 + _DRAW_BLOCK, draws))
-        mode, precision = _laplace(prior_mean[rows], prior_sd[rows], mu[rows], design, owner, y)
-        # Proposal N(mode, widen^2 precision^-1), drawn through the Cholesky factor of the
-        # precision: u = mode + widen * R^-1 eps with precision = R' R.
-        chol = np.linalg.cholesky(precision)  # lower, precision = L L'
+        mu = obs.mu[rows]
+        k = None if obs.dispersion is None else obs.dispersion[rows]
+        if dim == 0:  # nothing but the draws to reweight
+            log_weight[rows] = _log_likelihood(np.zeros((mu.shape[0], 0)), mu, obs, k)[0][:, None]
+            continue
+        mode, precision = _laplace(prior_mean[rows], prior_sd[rows], mu, obs, k)
+        # Proposal N(mode, widen^2 precision^-1), drawn as u = mode + widen * L'^-1 eps with
+        # precision = L L' (Cholesky), so log q = -|eps|^2 / 2 + log det L - p log widen + const.
+        chol = np.linalg.cholesky(precision)
         eps = rng.standard_normal((mode.shape[0], _PROPOSALS, dim))
         step = np.linalg.solve(np.swapaxes(chol, 1, 2)[:, None, :, :], eps[:, :, :, None])[..., 0]
         u = mode[:, None, :] + _PROPOSAL_WIDEN * step
@@ -631,30 +693,33 @@ def _update_with_shape(
             - dim * np.log(_PROPOSAL_WIDEN)
         )
         x = prior_mean[rows, None, :] + prior_sd[rows, None, :] * u
-        loglik = _log_likelihood(x, mu[rows, None, :], design, owner, y)[0]
+        noise_k = None if k is None else k[:, None, :]
+        loglik = _log_likelihood(x, mu[:, None, :], obs, noise_k)[0]
         log_weight[rows] = loglik - 0.5 * (u**2).sum(axis=2) - log_q
         candidates[rows] = x
     top = np.max(log_weight, axis=1, keepdims=True)
     finite_top = np.where(np.isfinite(top), top, 0.0)
-    log_evidence = finite_top[:, 0] + np.log(np.exp(log_weight - finite_top).mean(axis=1))
+    with np.errstate(divide="ignore"):
+        log_evidence = finite_top[:, 0] + np.log(np.exp(log_weight - finite_top).mean(axis=1))
     log_evidence = np.where(np.isfinite(top[:, 0]), log_evidence, -np.inf)
     index, ess = _systematic(log_evidence, rng)
     within = np.exp(log_weight[index] - finite_top[index])
     cumulative = np.cumsum(within, axis=1)
     picks = (cumulative < rng.random(index.size)[:, None] * cumulative[:, -1:]).sum(axis=1)
-    chosen = candidates[index, np.minimum(picks, _PROPOSALS - 1)]
-    today_z = chosen[:, 0] if level else np.zeros(index.size)
-    today_c = chosen[:, 1:] if level else chosen
+    chosen = candidates[index, np.minimum(picks, _PROPOSALS - 1)] if dim else None
+    today_z = chosen[:, 0] if level and chosen is not None else level_mean[index]
+    today_c = None
+    if spec.within_day and chosen is not None:
+        today_c = chosen[:, 1:] if level else chosen
 
     lam = _shaped_windows(
         posterior, starts, ends, index, today_z, today_c, today, rng, horizon_days
     )
-    expected = _expected_before(posterior, observed_starts, observed_ends, horizon_days)
     return IntradayUpdate(
         lam=lam,
         day=today,
         observed_total=int(counts.sum()),
-        expected_before=expected,
+        expected_before=_expected_before(posterior, observed_starts, observed_ends, horizon_days),
         draw_index=index,
         effective_sample_size=ess,
         latent=today_z if level else None,
@@ -678,13 +743,14 @@ def _shaped_windows(
     ends: pd.DatetimeIndex,
     index: IntArray,
     today_z: FloatArray,
-    today_c: FloatArray,
+    today_c: FloatArray | None,
     today: dt.date,
     rng: np.random.Generator,
     horizon_days: int,
 ) -> FloatArray:
-    """Today's pieces bin by bin with the picked ``(z, c)``; later days as published, with the
-    AR(1) continued from ``z``."""
+    """Today's pieces bin by bin with the picked ``(z, c)`` (``c`` None without the shape
+    term); later days as published, with the AR(1) continued from ``z``. Unobserved bins keep
+    their fixed gamma noise in a negative binomial series."""
     spec = posterior.spec
     tz = posterior.calendar.tz
     out = np.zeros((index.size, len(starts)))
@@ -695,8 +761,9 @@ def _shaped_windows(
             posterior, p_starts[on_today], p_ends[on_today]
         )
         mu = expected_counts(_flat(posterior), b_starts, b_ends, horizon_days=horizon_days)
-        basis = within_day_basis(spec.slots_per_day, spec.within_day)
-        log_factor = today_z[:, None] + today_c @ basis[b_slot].T
+        log_factor = np.repeat(today_z[:, None], len(b_slot), axis=1)
+        if today_c is not None:
+            log_factor += today_c @ within_day_basis(spec.slots_per_day, spec.within_day)[b_slot].T
         pieces = mu[index] * np.exp(log_factor)
         np.add.at(out.T, owner[on_today][b_owner], pieces.T)
     later = ~on_today

@@ -61,6 +61,22 @@ def _add_fit(sub: Any) -> None:
         help="count law per bin: poisson, or negbin (extra bin-level scatter with one dispersion "
         "per slot of the day; measured better calibrated on real hourly data, docs/calibration.md)",
     )
+    p.add_argument(
+        "--annual",
+        type=int,
+        default=0,
+        metavar="PAIRS",
+        help="annual season with this many Fourier pairs (0 = off, up to 12; needs about two "
+        "years of history; 4 suits daily data)",
+    )
+    p.add_argument(
+        "--within-day",
+        type=int,
+        default=0,
+        metavar="TERMS",
+        help="let each day's shape vary: this many smooth within-day terms (0 = off; 3 is a good "
+        "start for hourly data); intraday updates then learn today's shape from the morning",
+    )
     p.add_argument("--draws", type=int, default=1000, help="posterior draws per chain")
     p.add_argument("--tune", type=int, default=1000, help="warm-up steps per chain")
     p.add_argument("--chains", type=int, default=4)
@@ -96,6 +112,8 @@ def _run_fit(args: argparse.Namespace) -> int:
         latent_daily=not args.no_latent,
         holidays=calendar,
         observation=args.observation,
+        annual_harmonics=args.annual,
+        within_day=args.within_day,
     )
     print(
         f"{args.series}: {binned.total} arrivals in {len(binned.count)} observed "

@@ -37,11 +37,13 @@ def synthetic_posterior(
     annual: np.ndarray | None = None,
     within_day: np.ndarray | None = None,
     within_day_sd: np.ndarray | None = None,
+    dispersion: float | None = None,
 ) -> CompactPosterior:
     """A posterior whose every draw has the weekly rate table ``week_rate`` (7 x slots, per hour).
 
     ``annual`` (Fourier coefficients), ``within_day`` (``(day, term)`` shape weights of the
-    history days) and ``within_day_sd`` (``(term,)``) are shared by every draw.
+    history days) and ``within_day_sd`` (``(term,)``) are shared by every draw; ``dispersion``
+    makes it a negative binomial posterior with that k in every slot.
     """
     terms = 0 if within_day_sd is None else len(within_day_sd)
     spec = ModelSpec(
@@ -50,6 +52,7 @@ def synthetic_posterior(
         trend=trend != 0,
         annual_harmonics=0 if annual is None else len(annual) // 2,
         within_day=terms,
+        observation="poisson" if dispersion is None else "negbin",
     )
     week = np.broadcast_to(np.log(week_rate), (draws, 7, spec.slots_per_day)).astype(np.float32)
     latent = np.zeros((draws, n_days), dtype=np.float32)
@@ -80,6 +83,11 @@ def synthetic_posterior(
             ).astype(np.float32)
         ),
         within_day_sd=None if not terms else np.tile(np.float32(within_day_sd), (draws, 1)),
+        dispersion=(
+            None
+            if dispersion is None
+            else np.full((draws, spec.slots_per_day), dispersion, dtype=np.float32)
+        ),
     )
 
 

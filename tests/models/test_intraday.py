@@ -375,3 +375,66 @@ class TestWithShape:
             scores_before.append(crps_poisson_mixture(counts[12:20], before).mean())
             scores_after.append(crps_poisson_mixture(counts[12:20], result.lam).mean())
         assert np.mean(scores_after) < 0.85 * np.mean(scores_before)
+
+
+K_NB = 20.0
+
+
+class TestNegativeBinomial:
+    def test_level_matches_quadrature_with_the_scipy_nbinom_likelihood(self, weekly_table):
+        # Reference: scipy.integrate.quad over z of N(z; PRIOR_MEAN, PRIOR_VAR) times the
+        # likelihood from scipy.stats.nbinom (n = k, p = k / (k + mean)) of each observed hour:
+        # the per-bin gamma noise of the observed hours is integrated out, not held fixed.
+        posterior = synthetic_posterior(
+            weekly_table,
+            draws=4000,
+            latent_rho=RHO,
+            latent_sd=SD,
+            latent_last=LAST,
+            dispersion=K_NB,
+        )
+        observed = list(range(8, 14))
+        counts = np.array([40, 55, 61, 80, 70, 66])
+        table = weekly_table[1]
+
+        def log_post(z: float) -> float:
+            mean = table[observed] * math.exp(z)
+            return float(
+                stats.nbinom.logpmf(counts, K_NB, K_NB / (K_NB + mean)).sum()
+                - 0.5 * (z - PRIOR_MEAN) ** 2 / PRIOR_VAR
+            )
+
+        grid = np.linspace(-2, 2, 401)
+        peak = max(log_post(z) for z in grid)
+        lo, hi = PRIOR_MEAN - 10 * math.sqrt(PRIOR_VAR), PRIOR_MEAN + 10 * math.sqrt(PRIOR_VAR)
+        norm = integrate.quad(lambda z: math.exp(log_post(z) - peak), lo, hi, points=[0.0])[0]
+        mean_z = integrate.quad(lambda z: z * math.exp(log_post(z) - peak), lo, hi, points=[0.0])[0]
+        mean_z /= norm
+        result = update_forecast(
+            posterior, *hours(TODAY, 8, 14), counts, *hours(TODAY, 15, 17), seed=2
+        )
+        assert result.latent is not None
+        n = result.latent.size
+        assert result.latent.mean() == pytest.approx(mean_z, abs=4 * result.latent.std() / n**0.5)
+
+    def test_updated_afternoons_score_better_on_simulated_days(self, weekly_table):
+        posterior = synthetic_posterior(
+            weekly_table,
+            draws=300,
+            latent_rho=RHO,
+            latent_sd=SD,
+            latent_last=LAST,
+            dispersion=K_NB,
+        )
+        morning, afternoon = hours(TODAY, 0, 12), hours(TODAY, 12, 20)
+        before = expected_counts(posterior, *afternoon)
+        rng = np.random.default_rng(2028)
+        scores_before, scores_after = [], []
+        for replicate in range(40):
+            level = rng.normal(PRIOR_MEAN, math.sqrt(PRIOR_VAR))
+            noise = rng.gamma(K_NB, 1 / K_NB, size=24)
+            counts = rng.poisson(weekly_table[1] * np.exp(level) * noise)
+            result = update_forecast(posterior, *morning, counts[:12], *afternoon, seed=replicate)
+            scores_before.append(crps_poisson_mixture(counts[12:20], before).mean())
+            scores_after.append(crps_poisson_mixture(counts[12:20], result.lam).mean())
+        assert np.mean(scores_after) < 0.9 * np.mean(scores_before)

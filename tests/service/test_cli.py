@@ -214,6 +214,36 @@ class TestErrors:
         assert code == 2
         assert "Mars/Base" in capsys.readouterr().err
 
+    @pytest.mark.parametrize(
+        ("option", "value", "named"),
+        [
+            ("--within-day", "13", "within_day 13 must be 0 (off) or a whole number from 1 to 8"),
+            ("--annual", "-1", "annual_harmonics -1 must be a whole number from 0 (off) to 12"),
+        ],
+    )
+    def test_bad_term_counts_exit_2_naming_the_value(
+        self, tmp_path: Path, capsys, option: str, value: str, named: str
+    ) -> None:
+        (tmp_path / "c.csv").write_text("start,count\n2026-01-01T00:00Z,1\n2026-01-01T01:00Z,2\n")
+        code = main(
+            [
+                "fit",
+                "--series",
+                "x",
+                "--counts",
+                str(tmp_path / "c.csv"),
+                "--tz",
+                "UTC",
+                option,
+                value,
+                "--store",
+                str(tmp_path),
+            ]
+        )
+        assert code == 2
+        assert named in capsys.readouterr().err
+        assert not (tmp_path / "x").exists()
+
     def test_fractional_count_names_the_row(self, tmp_path: Path, capsys) -> None:
         (tmp_path / "c.csv").write_text("start,count\n2026-01-01T00:00Z,1\n2026-01-01T01:00Z,2.5\n")
         code = main(
