@@ -145,6 +145,12 @@ class CompactPosterior:
         return out
 
     @property
+    def noise_cache(self) -> tuple[threading.Lock, OrderedDict[int, np.ndarray]]:
+        """Per-bin gamma noise already computed for this version (see :mod:`models.predict`),
+        with the lock that guards it."""
+        return _cached(self, "noise", lambda: (threading.Lock(), OrderedDict()))  # type: ignore[no-any-return]
+
+    @property
     def week_by_cell(self) -> np.ndarray:
         """Weekly log rates cell-major, ``(dow, slot, draw)`` in float64 (for row gathers)."""
         return _cached(

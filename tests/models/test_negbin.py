@@ -157,6 +157,23 @@ class TestPrediction:
         half = expected_counts(posterior, *hour_windows("2026-03-04 10:00", hours=0.5))
         np.testing.assert_allclose(half[:, 0], alone[:, 0] / 2, rtol=1e-12)
 
+    def test_cached_noise_equals_fresh_noise_and_the_cache_is_bounded(
+        self, weekly_table, monkeypatch
+    ) -> None:
+        import models.predict as predict
+
+        monkeypatch.setattr(predict, "NOISE_CACHE_BINS", 30)
+        posterior = negbin(synthetic_posterior(weekly_table, draws=40), np.full((40, 24), 3.0))
+        week = hour_windows(*(f"2026-03-0{d} {h:02d}:00" for d in (2, 3) for h in range(24)))
+        first = expected_counts(posterior, *week)
+        _, cache = posterior.noise_cache
+        assert len(cache) == 30  # 48 bins computed, the 30 most recent kept
+        again = expected_counts(posterior, *week)  # 18 bins recomputed, 30 from the cache
+        np.testing.assert_array_equal(again, first)
+        # A fresh copy of the version (empty cache) gives the same numbers.
+        twin = negbin(synthetic_posterior(weekly_table, draws=40), np.full((40, 24), 3.0))
+        np.testing.assert_array_equal(expected_counts(twin, *week), first)
+
     def test_the_seed_fixes_the_noise(self, weekly_table) -> None:
         posterior = negbin(synthetic_posterior(weekly_table, draws=20), np.full((20, 24), 4.0))
         windows = hour_windows("2026-03-04 10:00")
