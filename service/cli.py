@@ -17,7 +17,15 @@ from typing import Any
 from models.exceptions import FitRejected, InputError, RatecastError, SeriesNotFound, StoreError
 from service.cli_backtest import register as _add_backtest
 from service.cli_capacity import register as _add_capacity
-from service.cli_common import grid, holiday_calendar, number_list, read_history, store_from_args
+from service.cli_common import (
+    add_model_options,
+    grid,
+    holiday_calendar,
+    model_spec,
+    number_list,
+    read_history,
+    store_from_args,
+)
 from service.cli_serve import register as _add_serve
 from service.queries import CAUTION, forecast_csv, forecast_document, range_windows
 
@@ -52,31 +60,7 @@ def _add_fit(sub: Any) -> None:
     p.add_argument(
         "--special-days", default=None, help="extra special dates, comma-separated YYYY-MM-DD"
     )
-    p.add_argument("--no-trend", action="store_true", help="leave out the linear trend")
-    p.add_argument("--no-latent", action="store_true", help="leave out the daily latent deviation")
-    p.add_argument(
-        "--observation",
-        choices=("poisson", "negbin"),
-        default="poisson",
-        help="count law per bin: poisson, or negbin (extra bin-level scatter with one dispersion "
-        "per slot of the day; measured better calibrated on real hourly data, docs/calibration.md)",
-    )
-    p.add_argument(
-        "--annual",
-        type=int,
-        default=0,
-        metavar="PAIRS",
-        help="annual season with this many Fourier pairs (0 = off, up to 12; needs about two "
-        "years of history; 4 suits daily data)",
-    )
-    p.add_argument(
-        "--within-day",
-        type=int,
-        default=0,
-        metavar="TERMS",
-        help="let each day's shape vary: this many smooth within-day terms (0 = off; 3 is a good "
-        "start for hourly data); intraday updates then learn today's shape from the morning",
-    )
+    add_model_options(p)
     p.add_argument("--draws", type=int, default=1000, help="posterior draws per chain")
     p.add_argument("--tune", type=int, default=1000, help="warm-up steps per chain")
     p.add_argument("--chains", type=int, default=4)
@@ -97,7 +81,6 @@ def _run_fit(args: argparse.Namespace) -> int:
     from models.binning import OpeningHours
     from models.pipeline import FitOptions, fit_and_publish
     from models.predict import parse_instant
-    from models.spec import ModelSpec
     from models.store import check_series_name
 
     check_series_name(args.series)
@@ -106,15 +89,7 @@ def _run_fit(args: argparse.Namespace) -> int:
     until = parse_instant(args.until, tz=args.tz).to_pydatetime() if args.until else None
     binned = read_history(args, opening=opening, until=until)
     calendar = holiday_calendar(args.holidays, args.special_days)
-    spec = ModelSpec(
-        bin_minutes=binned.bin_minutes,
-        trend=not args.no_trend,
-        latent_daily=not args.no_latent,
-        holidays=calendar,
-        observation=args.observation,
-        annual_harmonics=args.annual,
-        within_day=args.within_day,
-    )
+    spec = model_spec(args, bin_minutes=binned.bin_minutes, holidays=calendar)
     print(
         f"{args.series}: {binned.total} arrivals in {len(binned.count)} observed "
         f"{binned.bin_minutes}-minute bins, {binned.first_day} to {binned.end_day} ({args.tz}). "

@@ -14,7 +14,13 @@ from pathlib import Path
 from typing import Any
 
 from models.exceptions import InputError
-from service.cli_common import holiday_calendar, number_list, read_history
+from service.cli_common import (
+    add_model_options,
+    holiday_calendar,
+    model_spec,
+    number_list,
+    read_history,
+)
 
 __all__ = ["register"]
 
@@ -47,14 +53,7 @@ def register(sub: Any) -> None:
     p.add_argument("--history-days", type=int, default=None, help="fit on the last N days only")
     p.add_argument("--levels", default="0.5,0.8,0.95", help="interval levels to score")
     p.add_argument("--baseline-weeks", type=int, default=4, help="weeks in the weekday mean")
-    p.add_argument(
-        "--observation",
-        choices=("poisson", "negbin"),
-        default="poisson",
-        help="count model given the rate (default poisson, as ratecast fit)",
-    )
-    p.add_argument("--no-trend", action="store_true", help="leave out the linear trend")
-    p.add_argument("--no-latent", action="store_true", help="leave out the daily latent deviation")
+    add_model_options(p)
     p.add_argument("--draws", type=int, default=500, help="posterior draws per chain")
     p.add_argument("--tune", type=int, default=500, help="warm-up steps per chain")
     p.add_argument("--chains", type=int, default=2)
@@ -70,7 +69,6 @@ def _run(args: argparse.Namespace) -> int:
     from models.backtest import BacktestConfig, NutsFitter, make_origins, run_backtest
     from models.backtest_report import CAUTION, skill, write_report
     from models.binning import OpeningHours
-    from models.spec import ModelSpec
 
     opening = OpeningHours.parse(args.opening) if args.opening else None
     binned = read_history(args, opening=opening)
@@ -93,13 +91,7 @@ def _run(args: argparse.Namespace) -> int:
         baseline_weeks=args.baseline_weeks,
         seed=args.seed,
     )
-    spec = ModelSpec(
-        bin_minutes=binned.bin_minutes,
-        trend=not args.no_trend,
-        latent_daily=not args.no_latent,
-        holidays=holidays,
-        observation=args.observation,
-    )
+    spec = model_spec(args, bin_minutes=binned.bin_minutes, holidays=holidays)
     fitter = NutsFitter(spec, draws=args.draws, tune=args.tune, chains=args.chains, opening=opening)
     print(
         f"backtest: {len(origins)} origins {origins[0]}..{origins[-1]}, {args.horizon}-day "

@@ -55,7 +55,7 @@ class KnownRates:
             latent_rho=np.zeros(1),
             latent_sd=np.zeros(1),
             calendar=Calendar(TZ, 60, history.first_day, history.first_day),
-            spec=self.spec.with_(trend=False, latent_daily=False),
+            spec=self.spec.with_(trend=False, latent_daily=False, observation="poisson"),
             opening=None,
             seed=seed,
         )
