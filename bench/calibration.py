@@ -160,6 +160,9 @@ VARIANTS: dict[str, ModelSpec] = {
     ),
     "negbin-by-hour+latent": ModelSpec(observation="negbin", trend=False, holidays=NZ),
     "negbin-by-hour": ModelSpec(observation="negbin", trend=False, holidays=NZ, latent_daily=False),
+    "negbin-by-hour+latent+shape": ModelSpec(
+        observation="negbin", trend=False, holidays=NZ, within_day=3
+    ),
 }
 #: The recorded run used the C backend here: numba raised ZeroDivisionError on this variant
 #: before models/build.py clamped the AR(1) coefficient inside (1e-6, 1 - 1e-6); since then the

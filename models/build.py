@@ -136,22 +136,7 @@ def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
 
         mean = pt.exp(log_rate) * data.exposure_hours
         if spec.observation == "negbin":
-            # The prior sits on log(1/sqrt(k)), the log coefficient of variation of the gamma
-            # noise, which reads as "how noisy is a bin relative to its rate".
-            log_cv = pm.Normal(
-                "log_overdispersion",
-                mu=np.log(priors.overdispersion_median),
-                sigma=priors.overdispersion_log_sd,
-            )
-            if spec.dispersion_by_slot and spec.has_time_of_day:
-                spread = pm.HalfNormal(
-                    "overdispersion_slot_sd", sigma=priors.overdispersion_slot_scale
-                )
-                raw = pm.Normal("overdispersion_slot_raw", 0.0, 1.0, dims="slot")
-                log_cv_slot = log_cv + spread * raw
-            else:
-                log_cv_slot = log_cv + pt.zeros(spec.slots_per_day)
-            dispersion = pm.Deterministic("dispersion", pt.exp(-2.0 * log_cv_slot), dims="slot")
+            dispersion = _dispersion(spec, series=None)
             pm.NegativeBinomial(
                 "arrivals",
                 mu=mean,
@@ -162,6 +147,35 @@ def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
         else:
             pm.Poisson("arrivals", mu=mean, observed=data.count, dims="bin")
     return model
+
+
+def _dispersion(spec: ModelSpec, *, series: int | None) -> pt.TensorVariable:
+    """Negative binomial dispersion per slot (deterministic ``dispersion``), dims ``slot``, or
+    ``(series, slot)`` for a joint model with ``series`` members, each with its own.
+
+    The prior sits on log(1/sqrt(k)), the log coefficient of variation of the gamma noise, which
+    reads as "how noisy is a bin relative to its rate"; slots deviate from the series' value with
+    a learned spread (non-centred).
+    """
+    priors = spec.priors
+    lead: tuple[str, ...] = () if series is None else ("series",)
+    shape_lead: tuple[int, ...] = () if series is None else (series,)
+    log_cv = pm.Normal(
+        "log_overdispersion",
+        mu=np.log(priors.overdispersion_median),
+        sigma=priors.overdispersion_log_sd,
+        dims=lead or None,
+    )
+    log_cv = log_cv[..., None]
+    if spec.dispersion_by_slot and spec.has_time_of_day:
+        spread = pm.HalfNormal(
+            "overdispersion_slot_sd", sigma=priors.overdispersion_slot_scale, dims=lead or None
+        )
+        raw = pm.Normal("overdispersion_slot_raw", 0.0, 1.0, dims=(*lead, "slot"))
+        log_cv_slot = log_cv + spread[..., None] * raw
+    else:
+        log_cv_slot = log_cv + pt.zeros((*shape_lead, spec.slots_per_day))
+    return pm.Deterministic("dispersion", pt.exp(-2.0 * log_cv_slot), dims=(*lead, "slot"))
 
 
 def _columns_times(basis: np.ndarray, weights: pt.TensorVariable) -> pt.TensorVariable:
@@ -269,5 +283,16 @@ def build_joint_model(data: JointData, spec: ModelSpec) -> pm.Model:
             ]
             latent = pm.Deterministic("latent", pt.stack(paths), dims=("series", "day"))
             log_rate = log_rate + latent[series_of_bin, day]
-        pm.Poisson("arrivals", mu=pt.exp(log_rate) * exposure, observed=count, dims="bin")
+        mean = pt.exp(log_rate) * exposure
+        if spec.observation == "negbin":
+            dispersion = _dispersion(spec, series=n_series)
+            pm.NegativeBinomial(
+                "arrivals",
+                mu=mean,
+                alpha=dispersion[series_of_bin, slot],
+                observed=count,
+                dims="bin",
+            )
+        else:
+            pm.Poisson("arrivals", mu=mean, observed=count, dims="bin")
     return model

@@ -2,8 +2,9 @@
 
 The series share one day-of-week x time-of-day shape; each series adds its own day-of-week,
 time-of-day and interaction deviations with its own scales, its own level, trend, holiday effect
-and latent daily path. A series with a few weeks of history so borrows the weekly shape of its
-siblings, while a series with plenty of data keeps its own. After the joint fit every series gets
+and latent daily path (and, with negative binomial bins, its own dispersions). A series with a
+few weeks of history so borrows the weekly shape of its siblings, while a series with plenty of
+data keeps its own. After the joint fit every series gets
 an ordinary :class:`~models.posterior.CompactPosterior`, so storing and forecasting are unchanged.
 """
 
@@ -62,10 +63,6 @@ def make_joint_data(histories: dict[str, BinnedSeries], spec: ModelSpec) -> Join
     """
     if len(histories) < 2:
         raise InputError(f"a joint fit needs at least two series; got {len(histories)}")
-    if spec.observation != "poisson":
-        raise InputError(
-            f"observation {spec.observation!r} is not available for joint fits yet; allowed: 'poisson'"
-        )
     if spec.annual_harmonics or spec.within_day:
         raise InputError(
             f"annual_harmonics={spec.annual_harmonics} and within_day={spec.within_day}: the "

@@ -146,8 +146,7 @@ def _add_fit_group(sub: Any) -> None:
     p.add_argument("--open", dest="opening", default=None, help="opening hours shared by all")
     p.add_argument("--holidays", default=None, help="COUNTRY or COUNTRY:SUBDIVISION")
     p.add_argument("--special-days", default=None, help="extra dates, YYYY-MM-DD,...")
-    p.add_argument("--no-trend", action="store_true")
-    p.add_argument("--no-latent", action="store_true")
+    add_model_options(p)
     p.add_argument("--draws", type=int, default=1000)
     p.add_argument("--tune", type=int, default=1000)
     p.add_argument("--chains", type=int, default=4)
@@ -162,7 +161,6 @@ def _run_fit_group(args: argparse.Namespace) -> int:
     from models.binning import OpeningHours, bin_counts, parse_bin_width, read_table
     from models.joint import fit_joint, make_joint_data, publish_joint
     from models.pipeline import FitOptions
-    from models.spec import ModelSpec
 
     opening = OpeningHours.parse(args.opening) if args.opening else None
     bin_minutes = parse_bin_width(args.bin) if args.bin else None
@@ -177,12 +175,8 @@ def _run_fit_group(args: argparse.Namespace) -> int:
             read_table(path), tz=args.tz, bin_minutes=bin_minutes, opening=opening
         )
     widths = {h.bin_minutes for h in histories.values()}
-    spec = ModelSpec(
-        bin_minutes=min(widths),
-        trend=not args.no_trend,
-        latent_daily=not args.no_latent,
-        holidays=holiday_calendar(args.holidays, args.special_days),
-    )
+    calendar = holiday_calendar(args.holidays, args.special_days)
+    spec = model_spec(args, bin_minutes=min(widths), holidays=calendar)
     data = make_joint_data(histories, spec)
     print(
         f"fitting {', '.join(histories)} jointly ({sum(h.total for h in histories.values())} "

@@ -18,9 +18,11 @@ pytestmark = pytest.mark.slow
 TZ = "Europe/Dublin"
 FIRST = dt.date(2026, 1, 5)
 HOURS = np.arange(24)
-SHARED = np.log(4.0) + 1.3 * np.exp(-0.5 * ((HOURS - 12) / 3.5) ** 2)[None, :] + np.array(
-    [0.1, 0.05, 0.0, 0.0, 0.15, -0.15, -0.15]
-)[:, None]
+SHARED = (
+    np.log(4.0)
+    + 1.3 * np.exp(-0.5 * ((HOURS - 12) / 3.5) ** 2)[None, :]
+    + np.array([0.1, 0.05, 0.0, 0.0, 0.15, -0.15, -0.15])[:, None]
+)
 DEVIATION = {
     "site-a": np.zeros((7, 24)),
     "site-b": np.where(np.arange(7)[:, None] >= 5, 0.35, -0.14) + np.zeros((7, 24)),
@@ -102,3 +104,44 @@ def test_joint_needs_one_zone_and_two_series() -> None:
     other = BinnedSeries(one.start, one.count, one.exposure, "UTC", 60, one.first_day, one.end_day)
     with pytest.raises(InputError, match="one zone"):
         make_joint_data({"a": one, "b": other}, ModelSpec())
+
+
+TRUE_K = {"site-a": 4.0, "site-b": 40.0}
+
+
+@pytest.fixture(scope="session")
+def joint_negbin_fit():  # type: ignore[no-untyped-def]
+    # Two invented series with gamma-noised bins: one noisy (k = 4), one nearly Poisson (k = 40).
+    rng = np.random.default_rng(18)
+    histories = {}
+    for name, k in TRUE_K.items():
+        grid = bin_grid(FIRST, FIRST + dt.timedelta(weeks=5), tz=TZ, bin_minutes=60)
+        dow, slot, _, _ = local_features(grid, tz=TZ, bin_minutes=60)
+        rate = np.exp((SHARED + 1.0 + DEVIATION[name])[dow, slot])
+        counts = rng.poisson(rate * rng.gamma(k, 1.0 / k, size=len(grid)))
+        end = FIRST + dt.timedelta(weeks=5)
+        histories[name] = BinnedSeries(grid, counts, np.ones(len(grid)), TZ, 60, FIRST, end)
+    spec = ModelSpec(
+        trend=False, latent_daily=False, observation="negbin", dispersion_by_slot=False
+    )
+    options = FitOptions(draws=300, tune=400, chains=2, seed=6, progressbar=False)
+    return fit_joint(make_joint_data(histories, spec), spec, options=options)
+
+
+class TestJointNegativeBinomial:
+    def test_each_series_keeps_its_own_dispersion(self, joint_negbin_fit) -> None:
+        dispersion = joint_negbin_fit.idata["posterior"]["dispersion"]
+        assert dispersion.dims == ("chain", "draw", "series", "slot")
+        for name, k in TRUE_K.items():
+            draws = dispersion.sel(series=name).isel(slot=0).to_numpy().ravel()
+            lo, hi = np.quantile(draws, [0.01, 0.99])
+            assert lo <= k <= hi, (name, lo, hi)
+        a, b = (float(dispersion.sel(series=n).median()) for n in TRUE_K)
+        assert b > 3 * a
+
+    def test_compact_posteriors_carry_the_dispersion(self, joint_negbin_fit) -> None:
+        posteriors = joint_posteriors(joint_negbin_fit)
+        for posterior in posteriors.values():
+            assert posterior.dispersion is not None
+            assert posterior.dispersion.shape == (600, 24)
+            posterior.check_shapes()
