@@ -541,7 +541,6 @@ class TestAtomicReload:
                 app.router.lifespan_context(app),
                 httpx.AsyncClient(transport=transport, base_url="http://t") as http,
             ):
-
                 reloads_done = asyncio.Event()
 
                 async def ask() -> None:
