@@ -524,6 +524,7 @@ def _claim_folder(
     meta = folder / "backtest.json"
     if meta.exists():
         found = json.loads(meta.read_text())
+        found["fitter"] = _with_spec_defaults(found.get("fitter"))
         different = sorted(
             k
             for k in identity
@@ -537,6 +538,14 @@ def _claim_folder(
         return
     (folder / "origins").mkdir(parents=True, exist_ok=True)
     _atomic_json(meta, identity)
+
+
+def _with_spec_defaults(described: Any) -> Any:
+    """A fitter description whose model spec is read back with today's defaults filled in, so a
+    folder written before a model option existed still matches a run that leaves it off."""
+    if isinstance(described, dict) and isinstance(described.get("spec"), dict):
+        return {**described, "spec": ModelSpec.from_dict(described["spec"]).to_dict()}
+    return described
 
 
 def _atomic_json(path: Path, payload: dict[str, Any]) -> None:

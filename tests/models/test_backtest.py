@@ -277,6 +277,23 @@ class TestResume:
         with pytest.raises(InputError, match=r"different backtest \(config differ\)"):
             run_backtest(series, TruthFitter(), other, results_dir=tmp_path, progress=False)
 
+    def test_a_folder_from_before_a_model_option_existed_still_matches(self, tmp_path) -> None:
+        from models.backtest import NutsFitter, _claim_folder
+        from models.spec import ModelSpec
+
+        series = simulated(56)
+        config = BacktestConfig(origins=origins(4, 1), history_days=28)
+        _claim_folder(tmp_path, series, NutsFitter(ModelSpec()), config)
+        meta = tmp_path / "backtest.json"
+        identity = json.loads(meta.read_text())
+        for key in ("annual_harmonics", "within_day"):  # as written before these existed
+            del identity["fitter"]["spec"][key]
+        del identity["fitter"]["spec"]["priors"]["annual_sigma"]
+        meta.write_text(json.dumps(identity))
+        _claim_folder(tmp_path, series, NutsFitter(ModelSpec()), config)
+        with pytest.raises(InputError, match=r"different backtest \(fitter differ\)"):
+            _claim_folder(tmp_path, series, NutsFitter(ModelSpec(within_day=3)), config)
+
     def test_refit_cadence_reuses_the_last_fit(self) -> None:
         series = simulated(70)
         config = BacktestConfig(origins=origins(4, 5, every=3), refit_every=3, history_days=28)
