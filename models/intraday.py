@@ -459,13 +459,7 @@ def _updated_windows(
     p_starts, p_ends, owner, dates = _pieces_by_day(starts, ends, tz)
     mu = expected_counts(base, p_starts, p_ends, horizon_days=horizon_days)[index]
     offset = (dates - np.datetime64(today, "D")).astype(np.int64)
-    days_after = int(offset.max())
-    path = np.empty((index.size, days_after + 1))
-    path[:, 0] = today_z
-    # Innovations row by row (day after day), so a longer request extends the same path.
-    shocks = rng.standard_normal((days_after, index.size))
-    for k in range(1, days_after + 1):
-        path[:, k] = rho * path[:, k - 1] + sd * shocks[k - 1]
+    path = _continue_path(today_z, rho, sd, int(offset.max()), rng)
     pieces = mu * np.exp(path[:, offset])
     out = np.zeros((index.size, len(starts)))
     np.add.at(out.T, owner, pieces.T)
@@ -774,11 +768,21 @@ def _shaped_windows(
         offset = (dates[later] - np.datetime64(today, "D")).astype(np.int64)
         rho = posterior.latent_rho.astype(np.float64)[index]
         sd = posterior.latent_sd.astype(np.float64)[index]
-        days_after = int(offset.max())
-        path = np.empty((index.size, days_after + 1))
-        path[:, 0] = today_z
-        shocks = rng.standard_normal((days_after, index.size))
-        for k in range(1, days_after + 1):
-            path[:, k] = rho * path[:, k - 1] + sd * shocks[k - 1]
+        path = _continue_path(today_z, rho, sd, int(offset.max()), rng)
         np.add.at(out.T, owner[later], (mu[index] * np.exp(path[:, offset])).T)
     return out
+
+
+def _continue_path(
+    today_z: FloatArray, rho: FloatArray, sd: FloatArray, days_after: int, rng: np.random.Generator
+) -> FloatArray:
+    """The AR(1) from today's level on, ``(row, days_after + 1)``; column 0 is today.
+
+    Innovations are drawn day after day, so a longer request extends the same path.
+    """
+    path = np.empty((today_z.size, days_after + 1))
+    path[:, 0] = today_z
+    shocks = rng.standard_normal((days_after, today_z.size))
+    for k in range(1, days_after + 1):
+        path[:, k] = rho * path[:, k - 1] + sd * shocks[k - 1]
+    return path
