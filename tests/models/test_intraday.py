@@ -438,3 +438,19 @@ class TestNegativeBinomial:
             scores_before.append(crps_poisson_mixture(counts[12:20], before).mean())
             scores_after.append(crps_poisson_mixture(counts[12:20], result.lam).mean())
         assert np.mean(scores_after) < 0.9 * np.mean(scores_before)
+
+    def test_a_huge_dispersion_updates_like_the_poisson_series(self, weekly_table):
+        # k = 1e9 is beyond any measurable noise: the sampling update must agree with the exact
+        # grid update of the same series fitted as Poisson (within Monte Carlo error).
+        kwargs = dict(draws=4000, latent_rho=RHO, latent_sd=SD, latent_last=LAST)
+        counts = np.array([40, 55, 61, 80, 70, 66])
+        observed, later = hours(TODAY, 8, 14), hours(TODAY, 15, 17)
+        nb = update_forecast(
+            synthetic_posterior(weekly_table, dispersion=1e9, **kwargs), *observed, counts, *later
+        )
+        poisson = update_forecast(
+            synthetic_posterior(weekly_table, **kwargs), *observed, counts, *later
+        )
+        assert nb.latent is not None and poisson.latent is not None
+        spread = math.hypot(nb.latent.std(), poisson.latent.std()) / math.sqrt(4000)
+        assert nb.latent.mean() == pytest.approx(poisson.latent.mean(), abs=4 * spread)
