@@ -25,3 +25,36 @@ def test_blocked_ar1_path_matches_scipy_lfilter(n_days: int) -> None:
         shocks[0] /= np.sqrt(1.0 - r**2)
         expected = 0.2 * signal.lfilter([1.0], [1.0, -r], shocks)
         np.testing.assert_allclose(path(x, r, 0.2), expected, rtol=1e-9, atol=1e-12)
+
+
+def _hourly(rate: float, days: int = 28):  # type: ignore[no-untyped-def]
+    import datetime as dt
+
+    from models.binning import BinnedSeries, bin_grid
+    from models.design import make_model_data
+    from models.spec import ModelSpec
+
+    first = dt.date(2026, 2, 2)
+    grid = bin_grid(first, first + dt.timedelta(days=days), tz="UTC", bin_minutes=60)
+    counts = np.random.default_rng(1).poisson(rate, len(grid))
+    binned = BinnedSeries(
+        grid, counts, np.ones(len(grid)), "UTC", 60, first, first + dt.timedelta(days=days)
+    )
+    spec = ModelSpec(observation="negbin")
+    return make_model_data(binned, spec), spec
+
+
+@pytest.mark.parametrize(
+    ("rate", "centred"),
+    [(5.0, False), (150.0, True)],  # 4 weeks: 20 or 600 arrivals per weekly cell
+)
+def test_data_rich_series_are_sampled_centred(rate: float, centred: bool) -> None:
+    from models.build import build_model
+
+    data, spec = _hourly(rate)
+    names = {v.name for v in build_model(data, spec).free_RVs}
+    assert ("interaction" in names) is centred
+    assert ("interaction_raw" in names) is not centred
+    assert ("overdispersion_slot" in names) is centred
+    forced = {v.name for v in build_model(data, spec.with_(centred_interaction=False)).free_RVs}
+    assert "interaction_raw" in forced and "overdispersion_slot_raw" in forced
