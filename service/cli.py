@@ -44,7 +44,7 @@ def _add_fit(sub: Any) -> None:
     src.add_argument("--counts", help="CSV/Parquet file with columns start,count")
     p.add_argument("--tz", required=True, help="IANA time zone of the series, e.g. America/Chicago")
     p.add_argument("--time-column", default="timestamp", help="arrival time column (events)")
-    p.add_argument("--bin", default=None, help="bin width: 15min, 30min or 1h (events default 1h)")
+    p.add_argument("--bin", default=None, help="bin width: 15min, 30min, 1h or 1d (events default 1h)")
     p.add_argument(
         "--open",
         dest="opening",
@@ -142,7 +142,7 @@ def _add_fit_group(sub: Any) -> None:
         help="a series name and its counts file (CSV/Parquet, columns start,count); repeat",
     )
     p.add_argument("--tz", required=True, help="IANA time zone shared by the series")
-    p.add_argument("--bin", default=None, help="bin width: 15min, 30min or 1h (default: inferred)")
+    p.add_argument("--bin", default=None, help="bin width: 15min, 30min, 1h or 1d (default: inferred)")
     p.add_argument("--open", dest="opening", default=None, help="opening hours shared by all")
     p.add_argument("--holidays", default=None, help="COUNTRY or COUNTRY:SUBDIVISION")
     p.add_argument("--special-days", default=None, help="extra dates, YYYY-MM-DD,...")
