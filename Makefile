@@ -36,11 +36,14 @@ check: $(STAMP)
 bench: $(STAMP)
 	$(BIN)/python bench/run.py
 
-# Backtests on open real data (Auckland pedestrians, US births) and the joint-fit evidence; slow
-# (about 15 min on an idle 2-core machine). Writes docs/evidence.md and docs/evidence/.
+# Backtests on open real data (Auckland pedestrians, US births), the joint-fit evidence and the
+# intraday-update evidence; slow (the backtests alone took 16 min on an idle 2-core machine, the
+# intraday run about 10 more). Writes docs/evidence.md and docs/evidence/; the joint and intraday
+# scripts print the tables recorded in docs/hierarchy.md and docs/capacity.md.
 evidence: $(STAMP)
 	$(BIN)/python bench/evidence.py
 	$(BIN)/python bench/evidence_joint.py
+	$(BIN)/python bench/evidence_intraday.py
 
 clean:
 	rm -rf .demo .pytest_cache .mypy_cache .ruff_cache build *.egg-info
