@@ -290,8 +290,10 @@ regenerates the tables below but not this section.
   can gain. Variants measured at 2 x 400 draws did not close the gap (Queen Street, CRPS over all
   leads against 62.97 here): the within-day shape term 63.61 (and 16.25 against 16.29 at K Road);
   16 weeks of history instead of 8, 67.22 (worse: the street's level drifts through the autumn,
-  and a longer history averages over it); 4 weeks and a linear trend are reported in
-  docs/calibration.md with the variant reports under docs/evidence/.
+  and a longer history averages over it); 4 weeks, 65.53 (worse too: RMSE 160.8, too little to
+  pin 168 weekly cells); a linear trend, 62.95 (no change). Their reports are under
+  docs/evidence/ (`akl-45-queen-shape`, `akl-150-k-road-shape`, `akl-45-queen-16-weeks`,
+  `akl-45-queen-4-weeks`, `akl-45-queen-trend`).
 - **US births: accuracy met, calibration nearly.** With an annual season (four Fourier pairs)
   fitted to two years, CRPS is 22.8% and RMSE 20.1% better than the weekday mean (the first run,
   fitted to one year without a season, was 36% and 28% worse). 95% coverage 0.940 (met); 80%
