@@ -8,12 +8,20 @@ from typing import Any, Literal
 
 import arviz as az
 import numpy as np
+import xarray as xr
 
 from models.design import ModelData
 from models.exceptions import InputError
 from models.spec import ModelSpec
 
-__all__ = ["Diagnostics", "FitResult", "GateThresholds", "check_diagnostics", "fit_model"]
+__all__ = [
+    "Diagnostics",
+    "FitResult",
+    "GateThresholds",
+    "check_diagnostics",
+    "fit_model",
+    "unobserved_cells",
+]
 
 Sampler = Literal["pymc", "nutpie"]
 Backend = Literal["numba", "c"]
@@ -72,26 +80,57 @@ class FitResult:
     timings: dict[str, float] = field(default_factory=dict)
 
 
+def unobserved_cells(data: ModelData) -> np.ndarray:
+    """``(dow, slot)`` mask of the weekly cells with no observed exposure in the history (closed
+    or missing every week)."""
+    exposure = np.zeros((7, len(data.coords["slot"])))
+    np.add.at(exposure, (data.features.dow, data.features.slot), data.exposure_hours)
+    return np.asarray(exposure <= 0)
+
+
 def check_diagnostics(
     idata: az.InferenceData,
     *,
     thresholds: GateThresholds | None = None,
     var_names: list[str] | None = None,
+    unobserved: np.ndarray | None = None,
 ) -> Diagnostics:
     """Check r_hat, bulk ESS and divergences against ``thresholds``.
 
     Problems name the worst parameters and their values, e.g.
-    ``"r_hat 1.043 > 1.01 for dow_effect[Sat]"``.
+    ``"r_hat 1.043 > 1.01 for dow_effect[Sat]"``. ``unobserved`` (a ``(dow, slot)`` mask, see
+    :func:`unobserved_cells`) leaves out the entries no data inform: slot effects of slots never
+    observed and interaction cells never observed. Their draws are the prior's (they forecast
+    only hours the opening hours close, or hours never seen), and a slowly mixing prior is no
+    reason to refuse a fit.
     """
     thresholds = thresholds or GateThresholds()
     posterior = idata["posterior"]
-    # Deterministics are functions of the sampled variables: checking those is enough.
-    names = var_names or [
-        str(v) for v in posterior.data_vars if v not in ("week_log_rate", "interaction", "latent")
-    ]
+    # Deterministics are functions of the sampled variables: checking those is enough. Which
+    # names are deterministic depends on the parameterisation.
+    derived = {"week_log_rate", "dispersion", "within_day"}
+    if "baseline_rate" in posterior:
+        derived.add("baseline")
+    if "interaction_raw" in posterior:
+        derived.add("interaction")
+    if "latent_innovation" in posterior:
+        derived.add("latent")
+    names = var_names or [str(v) for v in posterior.data_vars if v not in derived]
     chains = int(posterior.sizes["chain"])
     draws = int(posterior.sizes["draw"])
-    summary = az.summary(idata, var_names=names, kind="diagnostics")
+    checked = posterior[names]
+    if unobserved is not None and unobserved.any():
+        checked = checked.copy()
+        for name in names:
+            dims = checked[name].dims[2:]
+            if dims == ("slot",) and name.startswith(("slot_effect", "overdispersion_slot")):
+                mask = xr.DataArray(unobserved.all(axis=0), dims=("slot",))
+            elif dims == ("dow", "slot"):
+                mask = xr.DataArray(unobserved, dims=("dow", "slot"))
+            else:
+                continue
+            checked[name] = checked[name].where(~mask)
+    summary = az.summary(checked, kind="diagnostics")
     r_hat = summary["r_hat"].astype(float)
     ess = summary["ess_bulk"].astype(float)
     divergences = 0
@@ -170,7 +209,7 @@ def fit_model(
         progressbar=progressbar,
     )
     timings["build_seconds"] = build_seconds
-    diagnostics = check_diagnostics(idata, thresholds=thresholds)
+    diagnostics = check_diagnostics(idata, thresholds=thresholds, unobserved=unobserved_cells(data))
     diagnostics = Diagnostics(
         **{**diagnostics.__dict__, "sampling_seconds": timings["sampling_seconds"]}
     )

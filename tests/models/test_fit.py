@@ -203,3 +203,25 @@ def test_nutpie_sampler_gives_the_same_conjugate_posterior() -> None:
     assert rate.mean() == pytest.approx(219 / 112, abs=0.015)
     assert fit.timings["leapfrog_steps"] > 0
     assert "warmup_posterior" not in fit.idata.groups()
+
+
+def test_never_observed_cells_are_left_out_of_the_gate() -> None:
+    # Two chains that disagree only on a slot no data inform (a closed hour): the gate must not
+    # refuse the fit for it, and must still refuse it when the same slot was observed.
+    import arviz as az
+
+    from models.design import slot_labels
+
+    rng = np.random.default_rng(4)
+    slots = slot_labels(60)
+    draws = rng.normal(size=(2, 500, 24))
+    draws[1, :, 23] += 3.0  # chains far apart at 23:00 only
+    idata = az.from_dict(
+        posterior={"slot_effect": draws}, coords={"slot": slots}, dims={"slot_effect": ["slot"]}
+    )
+    closed = np.zeros((7, 24), dtype=bool)
+    closed[:, 23] = True
+    assert check_diagnostics(idata, unobserved=closed).ok
+    refused = check_diagnostics(idata, unobserved=np.zeros((7, 24), dtype=bool))
+    assert not refused.ok
+    assert any("slot_effect[23:00]" in p for p in refused.problems)
