@@ -19,13 +19,13 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from models.design import Calendar
-from models.intraday import update_forecast
-from models.posterior import CompactPosterior
-from models.predict import expected_counts, split_range
-from models.simulate import simulate_arrivals
-from models.spec import ModelSpec
-from models.staffing import ServiceTarget, StaffingPlan, staff_intervals
+from models.capacity.staffing import ServiceTarget, StaffingPlan, staff_intervals
+from models.prediction.intraday import update_forecast
+from models.prediction.posterior import CompactPosterior
+from models.prediction.simulate import simulate_arrivals
+from models.prediction.windows import expected_counts, split_range
+from models.ratemodel.design import Calendar
+from models.ratemodel.spec import ModelSpec
 
 TZ = "America/Chicago"
 DRAWS = 4000

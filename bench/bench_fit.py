@@ -17,10 +17,11 @@ os.environ.setdefault("PYTENSOR_FLAGS", f"compiledir={Path.cwd() / '.cache' / 'p
 import numpy as np
 from simulated import hourly_history
 
-from models.build import build_model
-from models.design import make_model_data
-from models.fit import fit_model
-from models.spec import ModelSpec
+from models.fitting.build import build_model
+from models.fitting.options import FitOptions
+from models.fitting.sampling import fit_model
+from models.ratemodel.design import make_model_data
+from models.ratemodel.spec import ModelSpec
 
 
 def gradient_seconds(model, repeats: int = 2000) -> tuple[float, float]:  # type: ignore[no-untyped-def]
@@ -51,7 +52,7 @@ def main() -> None:
         data = make_model_data(binned, spec)
         grad, compile_seconds = gradient_seconds(build_model(data, spec))
         started = time.perf_counter()
-        result = fit_model(data, spec, chains=chains, seed=7, progressbar=False)
+        result = fit_model(data, spec, options=FitOptions(chains=chains, seed=7, progressbar=False))
         wall = time.perf_counter() - started
         steps = result.timings["leapfrog_steps"]
         floor = grad * steps / min(chains, cores)

@@ -15,10 +15,10 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from models.design import Calendar
-from models.posterior import CompactPosterior
-from models.predict import expected_counts, forecast
-from models.spec import ModelSpec
+from models.prediction.posterior import CompactPosterior
+from models.prediction.windows import expected_counts, forecast
+from models.ratemodel.design import Calendar
+from models.ratemodel.spec import ModelSpec
 from models.store import FileStore
 
 TZ = "America/Chicago"

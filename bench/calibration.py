@@ -1,7 +1,7 @@
 """Calibration measurements behind the negative binomial option (numbers for docs/calibration.md).
 
 Part 1, ``--part prediction``: how to predict with a negative binomial observation. Option (a),
-used by :mod:`models.predict`: each bin's rate gets Gamma(k, k) noise drawn per posterior draw,
+used by :mod:`models.prediction.windows`: each bin's rate gets Gamma(k, k) noise drawn per posterior draw,
 so every window's count stays a Poisson mixture over draws. Option (b): per draw, a negative
 binomial law for the whole window with the moment-matched dispersion
 ``r = m**2 / sum(mu_b**2 / k_b)``. Both are compared with the exact law (per draw, the
@@ -37,16 +37,17 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from evidence import NZ, auckland
 
-from models.backtest import (
+from models.evaluation.backtest import (
     BacktestConfig,
     FittedModel,
     NutsFitter,
     run_backtest,
     summarise_records,
 )
-from models.binning import BinnedSeries
-from models.mixture import mixture_cdf, summarise
-from models.spec import ModelSpec
+from models.fitting.options import FitOptions
+from models.prediction.mixture import mixture_cdf, summarise
+from models.ratemodel.binning import BinnedSeries
+from models.ratemodel.spec import ModelSpec
 
 # --------------------------------------------------------------------------- part 1
 
@@ -66,7 +67,7 @@ def prediction_choice(draws: int = 1000, seed: int = 7) -> dict[str, Any]:
     """Compare the options against the exact law for a degenerate posterior (one rate per bin).
 
     (a) iid: independent Gamma(k, k) noise per draw and bin; (a) stratified: the scheme
-    :mod:`models.predict` uses (gamma quantiles at ``(perm + v) / D``); (b) moment-matched NB.
+    :mod:`models.prediction.windows` uses (gamma quantiles at ``(perm + v) / D``); (b) moment-matched NB.
     """
     from scipy import special
 
@@ -118,9 +119,9 @@ def query_cost(draws: int) -> dict[str, float]:
     """Seconds for expected_counts over one week of hourly windows, Poisson and NB posteriors."""
     import pandas as pd
 
-    from models.design import Calendar
-    from models.posterior import CompactPosterior
-    from models.predict import expected_counts
+    from models.prediction.posterior import CompactPosterior
+    from models.prediction.windows import expected_counts
+    from models.ratemodel.design import Calendar
 
     spec = ModelSpec(trend=False, latent_daily=False)
     first = dt.date(2026, 1, 5)
@@ -165,7 +166,7 @@ VARIANTS: dict[str, ModelSpec] = {
     ),
 }
 #: The recorded run used the C backend here: numba raised ZeroDivisionError on this variant
-#: before models/build.py clamped the AR(1) coefficient inside (1e-6, 1 - 1e-6); since then the
+#: before models/fitting/build.py clamped the AR(1) coefficient inside (1e-6, 1 - 1e-6); since then the
 #: first origins sample with numba too (2 x 400 draws: no error, 0 divergences).
 BACKENDS = {"poisson+latent": "c"}
 ORIGINS = tuple(dt.date(2024, 3, 4) + dt.timedelta(days=21 * i) for i in range(4))
@@ -181,35 +182,18 @@ class LooFitter:
         import arviz as az
         import pymc as pm
 
-        from models.build import build_model
-        from models.design import make_model_data
-        from models.fit import fit_model
-        from models.posterior import compact_from_fit
+        from models.fitting.build import build_model
+        from models.fitting.sampling import fit_model
+        from models.ratemodel.design import make_model_data
 
         spec = self.inner.spec
         data = make_model_data(history, spec)
-        fit = fit_model(
-            data,
-            spec,
-            draws=self.inner.draws,
-            tune=self.inner.tune,
-            chains=self.inner.chains,
-            seed=seed,
-            progressbar=False,
-            backend="c" if self.inner.backend == "c" else "numba",
-        )
-        # log_likelihood needs the graph again; models.build is where graphs are made.
+        options = self.inner.options.with_changes(seed=seed, progressbar=False)
+        fit = fit_model(data, spec, options=options)
+        # log_likelihood needs the graph again; models.fitting.build is where graphs are made.
         pm.compute_log_likelihood(fit.idata, model=build_model(data, spec), progressbar=False)
         loo = az.loo(fit.idata, pointwise=True)
-        posterior = compact_from_fit(
-            fit.idata["posterior"],
-            calendar=data.calendar,
-            spec=spec,
-            n_days=data.n_days,
-            opening=None,
-            seed=seed,
-            max_draws=self.inner.max_draws,
-        )
+        posterior = fit.compact(max_draws=options.max_stored_draws)
         diagnostics = {
             **fit.diagnostics.to_dict(),
             "elpd_loo": float(loo.elpd_loo),
@@ -231,7 +215,14 @@ def variants(root: Path, *, draws: int, tune: int) -> dict[str, Any]:
     pointwise: dict[str, list[np.ndarray]] = {}
     for name, spec in VARIANTS.items():
         backend = BACKENDS.get(name, "numba")
-        fitter = LooFitter(NutsFitter(spec, draws=draws, tune=tune, chains=2, backend=backend))
+        fitter = LooFitter(
+            NutsFitter(
+                spec,
+                options=FitOptions(
+                    draws=draws, tune=tune, chains=2, backend=backend, max_stored_draws=1000
+                ),
+            )
+        )
         print(f"variant {name}", file=sys.stderr)
         try:
             records = run_backtest(

@@ -45,10 +45,11 @@ os.environ.setdefault("PYTENSOR_FLAGS", f"compiledir={Path.cwd() / '.cache' / 'p
 
 import pandas as pd
 
-from models.backtest import BacktestConfig, NutsFitter, band_labels, run_backtest
-from models.backtest_report import CAUTION, skill, write_report
-from models.binning import BinnedSeries, bin_counts
-from models.spec import HolidayCalendar, ModelSpec
+from models.evaluation.backtest import BacktestConfig, NutsFitter, band_labels, run_backtest
+from models.evaluation.report import CAUTION, skill, write_report
+from models.fitting.options import FitOptions
+from models.ratemodel.binning import BinnedSeries, bin_counts
+from models.ratemodel.spec import HolidayCalendar, ModelSpec
 
 AUCKLAND = "Pacific/Auckland"
 LEVELS = (0.5, 0.8, 0.95)
@@ -189,7 +190,12 @@ def run(
     if quick:
         config = replace(config, origins=config.origins[:: max(1, len(config.origins) // 3)][:3])
     binned = dataset.load()
-    fitter = NutsFitter(dataset.spec, draws=draws, tune=tune, chains=2, backend=dataset.backend)
+    fitter = NutsFitter(
+        dataset.spec,
+        options=FitOptions(
+            draws=draws, tune=tune, chains=2, backend=dataset.backend, max_stored_draws=1000
+        ),
+    )
     started = time.perf_counter()
     print(f"{name}: {len(binned.count)} bins, {len(config.origins)} origins", file=sys.stderr)
     records = run_backtest(

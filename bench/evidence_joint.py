@@ -19,16 +19,15 @@ os.environ.setdefault("PYTENSOR_FLAGS", f"compiledir={Path.cwd() / '.cache' / 'p
 import numpy as np
 import pandas as pd
 
-from models.binning import bin_counts
-from models.design import make_model_data
-from models.fit import fit_model
-from models.joint import fit_joint, joint_posteriors, make_joint_data
-from models.mixture import summarise
-from models.pipeline import FitOptions
-from models.posterior import compact_from_fit
-from models.predict import expected_counts
-from models.scoring import coverage, crps_poisson_mixture
-from models.spec import HolidayCalendar, ModelSpec
+from models.evaluation.scoring import coverage, crps_poisson_mixture
+from models.fitting.joint import fit_joint, joint_posteriors, make_joint_data
+from models.fitting.options import FitOptions
+from models.fitting.sampling import fit_model
+from models.prediction.mixture import summarise
+from models.prediction.windows import expected_counts
+from models.ratemodel.binning import bin_counts
+from models.ratemodel.design import make_model_data
+from models.ratemodel.spec import HolidayCalendar, ModelSpec
 
 TZ = "Pacific/Auckland"
 SIBLINGS = ("45 Queen Street", "205 Queen Street")
@@ -83,23 +82,8 @@ def main() -> None:
     actual = sensor_counts(YOUNG, *TEST)
 
     started = time.perf_counter()
-    alone = fit_model(
-        make_model_data(histories[young_key], spec),
-        spec,
-        draws=500,
-        tune=500,
-        chains=2,
-        seed=3,
-        progressbar=False,
-    )
-    alone_post = compact_from_fit(
-        alone.idata["posterior"],
-        calendar=alone.data.calendar,
-        spec=spec,
-        n_days=alone.data.n_days,
-        opening=None,
-        seed=3,
-    )
+    alone = fit_model(make_model_data(histories[young_key], spec), spec, options=options)
+    alone_post = alone.compact()
     alone_seconds = time.perf_counter() - started
     started = time.perf_counter()
     joint = fit_joint(make_joint_data(histories, spec), spec, options=options)

@@ -6,7 +6,7 @@ import datetime as dt
 
 import numpy as np
 
-from models.binning import BinnedSeries, bin_grid, local_features
+from models.ratemodel.binning import BinnedSeries, bin_grid, local_features
 
 TZ = "America/Chicago"
 

@@ -28,7 +28,7 @@ from pathlib import Path
 from typing import Any, Protocol
 
 from models.exceptions import CorruptArtefact, InputError, SeriesNotFound, StoreError
-from models.posterior import CompactPosterior
+from models.prediction.posterior import CompactPosterior
 
 __all__ = [
     "FORMAT",

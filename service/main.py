@@ -18,12 +18,12 @@ from models import __version__
 from models.store import FileStore, PosteriorStore
 from service.api.errors import install_error_handlers
 from service.api.limits import BodyLimitMiddleware
-from service.api.metrics import Metrics, MetricsMiddleware
+from service.api.registry import Registry, watch
 from service.api.routes import ROUTERS
 from service.api.routes.capacity import router as capacity_router
+from service.api.telemetry import Metrics, MetricsMiddleware
 from service.config import Settings, get_settings
-from service.queries import CAUTION
-from service.registry import Registry, watch
+from service.queries.forecast import CAUTION
 
 __all__ = ["app", "create_app"]
 

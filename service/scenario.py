@@ -15,8 +15,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from models.binning import local_features
-from models.spec import HolidayCalendar
+from models.ratemodel.binning import local_features
+from models.ratemodel.spec import HolidayCalendar
 
 __all__ = ["FIRST_DAY", "OPENING_HOURS", "TZ", "WEEKS", "write_events"]
 

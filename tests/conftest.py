@@ -14,10 +14,10 @@ os.environ.setdefault(
     "PYTENSOR_FLAGS", f"compiledir={Path(__file__).resolve().parents[1] / '.cache' / 'pytensor'}"
 )
 
-from models.binning import OpeningHours
-from models.design import Calendar
-from models.posterior import CompactPosterior
-from models.spec import ModelSpec
+from models.prediction.posterior import CompactPosterior
+from models.ratemodel.binning import OpeningHours
+from models.ratemodel.design import Calendar
+from models.ratemodel.spec import ModelSpec
 
 
 def synthetic_posterior(

@@ -13,9 +13,9 @@ from fastapi.security import HTTPAuthorizationCredentials, HTTPBearer
 from pydantic import SecretStr
 
 from service.api.errors import ApiError
-from service.api.metrics import Metrics
+from service.api.registry import Registry
+from service.api.telemetry import Metrics
 from service.config import Settings
-from service.registry import Registry
 
 __all__ = [
     "AdminAccess",

@@ -1,7 +1,7 @@
-"""From validated request fields to the forecast document of :mod:`service.queries`.
+"""From validated request fields to the forecast document of :mod:`service.queries.forecast`.
 
-Nothing here predicts: times are parsed by :mod:`models.predict`, windows cut by its
-``split_range``, and the document built by :func:`service.queries.forecast_document`, exactly as the
+Nothing here predicts: times are parsed by :mod:`models.prediction.windows`, windows cut by its
+``split_range``, and the document built by :func:`service.queries.forecast.forecast_document`, exactly as the
 CLI does, so both give the same numbers. What this module adds is the edge: each failure names the
 request field, configured limits are applied before any large allocation, and large requests are
 computed off the event loop.
@@ -18,13 +18,13 @@ from typing import Any
 import anyio.to_thread
 import pandas as pd
 
-from models.binning import check_zone
-from models.predict import parse_instant, parse_step, split_range
+from models.prediction.windows import parse_instant, parse_step, split_range
+from models.ratemodel.binning import check_zone
 from models.store import StoredVersion
 from service.api.errors import ApiError, field_errors
+from service.api.registry import Registry
 from service.api.schemas import INSTANT_ALLOWED, WindowIn
-from service.queries import forecast_document
-from service.registry import Registry
+from service.queries.forecast import forecast_document
 
 __all__ = [
     "HEAVY_WINDOWS",

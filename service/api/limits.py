@@ -13,7 +13,7 @@ from starlette.exceptions import HTTPException
 from starlette.responses import JSONResponse
 
 from service.api.errors import ApiError
-from service.api.metrics import ASGIApp, Message, Receive, Scope, Send
+from service.api.telemetry import ASGIApp, Message, Receive, Scope, Send
 
 __all__ = ["BodyLimitMiddleware", "BodyTooLarge"]
 

@@ -1,7 +1,7 @@
 """Request and response shapes of the HTTP API (separate classes for each direction).
 
 Requests forbid unknown fields so a misspelt option fails loudly instead of being ignored. Times
-travel as ISO 8601 strings and are parsed by :func:`models.predict.parse_instant`, the same parser
+travel as ISO 8601 strings and are parsed by :func:`models.prediction.windows.parse_instant`, the same parser
 the CLI uses; the pattern below only keeps out what is plainly not a date-time.
 """
 

@@ -18,7 +18,7 @@ import pytest
 import yaml
 
 from models.store import MemoryStore
-from service.cli import build_parser
+from service.cli.app import build_parser
 from service.config import Settings
 from service.main import create_app
 

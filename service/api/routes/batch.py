@@ -20,9 +20,9 @@ from models.store import StoredVersion
 from service.api.deps import ReadAccess, RegistryDep, SettingsDep
 from service.api.errors import ApiError, error_from_exception, problems_from_validation
 from service.api.forecasting import answer, range_index, served_version, window_index
+from service.api.registry import Registry
 from service.api.schemas import BatchItem, BatchRecord, BatchRequest
 from service.config import Settings
-from service.registry import Registry
 
 __all__ = ["NDJSONResponse", "router"]
 

@@ -1,8 +1,8 @@
 """Capacity for one series: staffing per interval, and the intraday update of a forecast.
 
-Both answers are built by :mod:`service.cli_capacity`, the same code as ``ratecast staff`` and
+Both answers are built by :mod:`service.cli.capacity`, the same code as ``ratecast staff`` and
 ``ratecast update``, so the CLI and the API give the same numbers. Staffing answers carry the
-caution of :data:`models.staffing.STAFFING_CAUTION`.
+caution of :data:`models.capacity.staffing.STAFFING_CAUTION`.
 """
 
 from __future__ import annotations
@@ -16,8 +16,8 @@ from fastapi import APIRouter
 from fastapi.responses import JSONResponse
 from pydantic import BaseModel, ConfigDict, Field
 
-from models.predict import parse_instant
-from models.staffing import STAFFING_CAUTION, ServiceTarget
+from models.capacity.staffing import STAFFING_CAUTION, ServiceTarget
+from models.prediction.windows import parse_instant
 from service.api.deps import ReadAccess, RegistryDep, SettingsDep
 from service.api.errors import ApiError, field_errors
 from service.api.forecasting import check_tz, forecast_until, range_index, served_version
@@ -29,7 +29,7 @@ from service.api.schemas import (
     WindowIn,
     Zone,
 )
-from service.capacity_queries import staffing_document, update_document
+from service.queries.capacity import staffing_document, update_document
 
 __all__ = [
     "IntradayRequest",

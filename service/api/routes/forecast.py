@@ -11,7 +11,7 @@ from service.api.deps import ReadAccess, RegistryDep, SettingsDep
 from service.api.errors import ApiError
 from service.api.forecasting import answer, range_index, served_version, window_index
 from service.api.schemas import BandsQuery, ErrorResponse, ForecastRequest, ForecastResponse
-from service.queries import CAUTION, forecast_csv
+from service.queries.forecast import CAUTION, forecast_csv
 
 __all__ = ["router"]
 
@@ -57,7 +57,7 @@ async def forecast(
         horizon_days=settings.max_horizon_days,
         windows=[w.model_dump() for w in body.windows],
     )
-    # The document is built by service.queries; returned as is, it skips a second validation.
+    # The document is built by service.queries.forecast; returned as is, it skips a second validation.
     return JSONResponse(doc)
 
 

@@ -6,8 +6,8 @@ from fastapi import APIRouter
 from fastapi.responses import PlainTextResponse
 
 from service.api.deps import MetricsDep, ReadAccess, RegistryDep
-from service.api.metrics import render
 from service.api.schemas import ErrorResponse
+from service.api.telemetry import render
 
 __all__ = ["router"]
 

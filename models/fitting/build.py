@@ -1,0 +1,330 @@
+"""Turn a model description (:class:`~models.ratemodel.spec.ModelSpec`) and its data into a PyMC model.
+
+This is the only module that builds PyMC graphs. Effects with plenty of data behind them use the
+centred :class:`pymc.ZeroSumNormal` (measured faster and free of divergences here, compared with a
+non-centred form), each block with its own learned scale so it is partially pooled toward zero.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pymc as pm
+import pytensor.tensor as pt
+
+from models.ratemodel.bases import annual_basis, within_day_basis, year_phase
+from models.ratemodel.design import JointData, ModelData
+from models.ratemodel.spec import DATA_RICH_CELL_COUNT, ModelSpec
+
+__all__ = ["build_joint_model", "build_model"]
+
+
+def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
+    """Build the log-rate model with named dims ``dow``, ``slot``, ``day`` and ``bin`` (and
+    ``annual_term`` / ``within_term`` when those terms are on).
+
+    Counts are Poisson given the rate, or negative binomial (mean ``mu``, variance
+    ``mu + mu**2 / dispersion[slot]``, deterministic ``dispersion`` with dims ``slot``) when
+    ``spec.observation == "negbin"``.
+
+    Parameters
+    ----------
+    data
+        Binned history in model coordinates.
+    spec
+        Which terms and priors.
+
+    Returns
+    -------
+    pymc.Model
+        With the deterministic ``week_log_rate`` (dims ``dow``, ``slot``): the log rate per hour of
+        each weekly cell at the trend origin on an ordinary day with no latent deviation.
+    """
+    feats = data.features
+    coords = {**data.coords, "bin": np.arange(len(data.count))}
+    priors = spec.priors
+    with pm.Model(coords=coords) as model:
+        if priors.baseline_gamma is not None:
+            shape, rate = priors.baseline_gamma
+            baseline_rate = pm.Gamma("baseline_rate", alpha=shape, beta=rate)
+            baseline = pm.Deterministic("baseline", pt.log(baseline_rate))
+        else:
+            baseline = pm.Normal(
+                "baseline", mu=np.log(max(data.mean_rate, 1e-3)), sigma=priors.baseline_sigma
+            )
+
+        week = pt.zeros((7, spec.slots_per_day)) + baseline
+        if spec.day_of_week:
+            dow_sd = pm.HalfNormal("dow_sd", sigma=priors.dow_scale)
+            dow_effect = pm.ZeroSumNormal("dow_effect", sigma=dow_sd, dims="dow")
+            week = week + dow_effect[:, None]
+        if spec.has_time_of_day:
+            slot_sd = pm.HalfNormal("slot_sd", sigma=priors.slot_scale)
+            slot_effect = pm.ZeroSumNormal("slot_effect", sigma=slot_sd, dims="slot")
+            week = week + slot_effect[None, :]
+        centred = _centred(data, spec)
+        if spec.interaction and spec.has_time_of_day:
+            # Shrinks toward the additive weekly shape as interaction_sd -> 0.
+            interaction_sd = pm.HalfNormal("interaction_sd", sigma=priors.interaction_scale)
+            if centred:
+                interaction = pm.ZeroSumNormal(
+                    "interaction", sigma=interaction_sd, n_zerosum_axes=2, dims=("dow", "slot")
+                )
+            else:
+                # Non-centred: each cell holds little data, so the centred form funnels as
+                # interaction_sd -> 0 (r_hat 1.7 measured on 4 weeks of sparse hourly data).
+                raw = pm.ZeroSumNormal(
+                    "interaction_raw", sigma=1.0, n_zerosum_axes=2, dims=("dow", "slot")
+                )
+                interaction = pm.Deterministic(
+                    "interaction", interaction_sd * raw, dims=("dow", "slot")
+                )
+            week = week + interaction
+        week_log_rate = pm.Deterministic("week_log_rate", week, dims=("dow", "slot"))
+
+        log_rate = week_log_rate[feats.dow, feats.slot]
+        if spec.trend:
+            trend = pm.Normal("trend", mu=0.0, sigma=priors.trend_sigma)
+            log_rate = log_rate + trend * feats.years
+        if spec.holidays is not None:
+            holiday_effect = pm.Normal("holiday_effect", mu=0.0, sigma=priors.holiday_sigma)
+            log_rate = log_rate + holiday_effect * feats.holiday
+        if spec.annual_harmonics:
+            annual = pm.Normal("annual", 0.0, priors.annual_sigma, dims="annual_term")
+            # One value per history day, gathered to the bins (keeps the graph's constants small).
+            days = np.datetime64(data.calendar.first_day, "D") + np.arange(data.n_days)
+            basis = annual_basis(year_phase(days), spec.annual_harmonics)
+            log_rate = log_rate + _columns_times(basis, annual)[feats.day]
+        if spec.within_day:
+            # Non-centred: a day's shape weights are informed by that day's bins only.
+            within_sd = pm.HalfNormal(
+                "within_day_sd", sigma=priors.within_day_scale, dims="within_term"
+            )
+            within_raw = pm.Normal("within_day_raw", 0.0, 1.0, dims=("day", "within_term"))
+            within = pm.Deterministic(
+                "within_day", within_raw * within_sd[None, :], dims=("day", "within_term")
+            )
+            # The (day, slot) table of shape deviations, gathered to the bins.
+            basis = within_day_basis(spec.slots_per_day, spec.within_day)
+            table = _columns_times(basis[None, :, :], within.T[:, :, None])
+            cell = feats.day * spec.slots_per_day + feats.slot
+            log_rate = log_rate + table.ravel()[cell]
+        if spec.latent_daily:
+            rho = pm.Beta("latent_rho", alpha=3.0, beta=2.0)
+            latent_sd = pm.HalfNormal("latent_sd", sigma=priors.latent_scale)
+            if spec.centred_latent:
+                latent = pm.AR(
+                    "latent",
+                    rho=[rho],
+                    sigma=latent_sd,
+                    init_dist=pm.Normal.dist(0.0, latent_sd / pt.sqrt(1.0 - rho**2)),
+                    ar_order=1,
+                    constant=False,
+                    dims="day",
+                )
+            else:
+                innovation = pm.Normal("latent_innovation", 0.0, 1.0, dims="day")
+                latent = pm.Deterministic(
+                    "latent",
+                    _ar1_from_innovations(innovation, rho, latent_sd, data.n_days),
+                    dims="day",
+                )
+            log_rate = log_rate + latent[feats.day]
+
+        mean = pt.exp(log_rate) * data.exposure_hours
+        if spec.observation == "negbin":
+            dispersion = _dispersion(spec, series=None, centred=centred)
+            pm.NegativeBinomial(
+                "arrivals",
+                mu=mean,
+                alpha=dispersion[feats.slot],
+                observed=data.count,
+                dims="bin",
+            )
+        else:
+            pm.Poisson("arrivals", mu=mean, observed=data.count, dims="bin")
+    return model
+
+
+def _centred(data: ModelData, spec: ModelSpec) -> bool:
+    """Whether to sample the interaction and slot dispersions centred (see
+    :attr:`ModelSpec.centred_interaction` and :data:`~models.ratemodel.spec.DATA_RICH_CELL_COUNT`)."""
+    if spec.centred_interaction is not None:
+        return spec.centred_interaction
+    cells = 7 * spec.slots_per_day
+    return float(np.sum(data.count)) / cells >= DATA_RICH_CELL_COUNT
+
+
+def _dispersion(spec: ModelSpec, *, series: int | None, centred: bool) -> pt.TensorVariable:
+    """Negative binomial dispersion per slot (deterministic ``dispersion``), dims ``slot``, or
+    ``(series, slot)`` for a joint model with ``series`` members, each with its own.
+
+    The prior sits on log(1/sqrt(k)), the log coefficient of variation of the gamma noise, which
+    reads as "how noisy is a bin relative to its rate"; slots deviate from the series' value with
+    a learned spread, as a zero-sum effect (so the series' value is their mean and not traded
+    against them), centred for data-rich series and non-centred otherwise.
+    """
+    priors = spec.priors
+    lead: tuple[str, ...] = () if series is None else ("series",)
+    shape_lead: tuple[int, ...] = () if series is None else (series,)
+    log_cv = pm.Normal(
+        "log_overdispersion",
+        mu=np.log(priors.overdispersion_median),
+        sigma=priors.overdispersion_log_sd,
+        dims=lead or None,
+    )
+    log_cv = log_cv[..., None]
+    if spec.dispersion_by_slot and spec.has_time_of_day:
+        spread = pm.HalfNormal(
+            "overdispersion_slot_sd", sigma=priors.overdispersion_slot_scale, dims=lead or None
+        )
+        if centred:
+            slot_effect = pm.ZeroSumNormal(
+                "overdispersion_slot", sigma=spread[..., None], dims=(*lead, "slot")
+            )
+        else:
+            raw = pm.ZeroSumNormal("overdispersion_slot_raw", sigma=1.0, dims=(*lead, "slot"))
+            slot_effect = spread[..., None] * raw
+        log_cv_slot = log_cv + slot_effect
+    else:
+        log_cv_slot = log_cv + pt.zeros((*shape_lead, spec.slots_per_day))
+    return pm.Deterministic("dispersion", pt.exp(-2.0 * log_cv_slot), dims=(*lead, "slot"))
+
+
+def _columns_times(basis: np.ndarray, weights: pt.TensorVariable) -> pt.TensorVariable:
+    """``sum_j basis[..., j] * weights[j]``, as elementwise products one term at a time.
+
+    Written out rather than as a matrix product, which PyTensor would hand to BLAS (which pip
+    installs lack). ``weights[j]`` broadcasts against ``basis[..., j]``.
+    """
+    total = basis[..., 0] * weights[0]
+    for j in range(1, basis.shape[-1]):
+        total = total + basis[..., j] * weights[j]
+    return total
+
+
+#: Days per block of the AR(1) path: a dense product inside each block, a carry between blocks.
+_AR1_BLOCK = 32
+
+
+def _ar1_from_innovations(
+    innovation: pt.TensorVariable, rho: pt.TensorVariable, sd: pt.TensorVariable, n_days: int
+) -> pt.TensorVariable:
+    """Stationary AR(1) path ``z[k] = rho z[k-1] + sd e[k]``, the first day from the stationary
+    law (``sd / sqrt(1 - rho**2)``), as a deterministic function of standard-normal innovations.
+
+    Days are taken in blocks of :data:`_AR1_BLOCK`: within a block the path is a dense triangular
+    product (``rho**(i - j)`` for ``j <= i``), and each block adds the previous block's last value
+    times ``rho**(i + 1)``. The cost is O(days x block) per gradient rather than the O(days**2)
+    of one dense product over the whole history (which dominated the gradient on a year of
+    hourly data), and there is no scan.
+    """
+    # Keep rho off 0 and 1: the gradient of rho**0 is 0 * rho**-1, and the numba backend raises
+    # ZeroDivisionError (rather than returning nan) when an extreme warm-up step rounds rho to 0,
+    # which stopped sampling on real hourly data; near 1 the stationary scale blows up.
+    rho = pt.clip(rho, 1e-6, 1.0 - 1e-6)
+    size = min(_AR1_BLOCK, n_days)
+    blocks = -(-n_days // size)
+    first = pt.set_subtensor(pt.ones(n_days)[0], 1.0 / pt.sqrt(1.0 - rho**2))
+    shocks = pt.concatenate([innovation * first, pt.zeros(blocks * size - n_days)])
+    lag = np.subtract.outer(np.arange(size), np.arange(size))
+    lower = lag >= 0
+    within = pt.switch(lower, rho ** np.where(lower, lag, 0), 0.0)
+    # (block, day in block); a broadcast sum rather than a matrix product, which PyTensor would
+    # hand to BLAS (absent from pip installs; its fallback warns and logs rewrite failures).
+    local = (shocks.reshape((blocks, 1, size)) * within[None, :, :]).sum(axis=2)
+    decay = rho ** np.arange(1, size + 1)
+    parts = []
+    carry: pt.TensorVariable | float = 0.0
+    for b in range(blocks):
+        part = local[b] + decay * carry
+        parts.append(part)
+        carry = part[-1]
+    return sd * pt.concatenate(parts)[:n_days]
+
+
+def build_joint_model(data: JointData, spec: ModelSpec) -> pm.Model:
+    """Build the multi-series model (see :mod:`models.fitting.joint`) with dims ``series``, ``dow``,
+    ``slot``, ``day`` and ``bin``.
+
+    Variables carry the single-series names with a leading ``series`` dim, so selecting one series
+    from the posterior gives exactly the layout of :func:`build_model`.
+    """
+    members = data.members
+    n_series = len(members)
+    coords = {
+        "series": list(data.names),
+        **members[0].coords,
+        "bin": np.arange(sum(len(m.count) for m in members)),
+    }
+    series_of_bin = np.concatenate([np.full(len(m.count), s) for s, m in enumerate(members)])
+    dow = np.concatenate([m.features.dow for m in members])
+    slot = np.concatenate([m.features.slot for m in members])
+    day = np.concatenate([m.features.day for m in members])
+    years = np.concatenate([m.features.years for m in members])
+    holiday = np.concatenate([m.features.holiday for m in members])
+    exposure = np.concatenate([m.exposure_hours for m in members])
+    count = np.concatenate([m.count for m in members])
+    priors = spec.priors
+    with pm.Model(coords=coords) as model:
+        level = np.log(np.maximum([m.mean_rate for m in members], 1e-3))
+        baseline = pm.Normal("baseline", mu=level, sigma=priors.baseline_sigma, dims="series")
+        # The shared weekly shape.
+        dow_sd = pm.HalfNormal("dow_sd", sigma=priors.dow_scale)
+        slot_sd = pm.HalfNormal("slot_sd", sigma=priors.slot_scale)
+        shared = (
+            pm.ZeroSumNormal("dow_effect", sigma=dow_sd, dims="dow")[:, None]
+            + pm.ZeroSumNormal("slot_effect", sigma=slot_sd, dims="slot")[None, :]
+        )
+        if spec.interaction:
+            interaction_sd = pm.HalfNormal("interaction_sd", sigma=priors.interaction_scale)
+            raw = pm.ZeroSumNormal(
+                "interaction_raw", sigma=1.0, n_zerosum_axes=2, dims=("dow", "slot")
+            )
+            shared = shared + interaction_sd * raw
+        # Series-level deviations from it, each block with its own per-series scale (non-centred:
+        # a young series has little data behind its deviations).
+        main_sd = pm.HalfNormal("deviation_main_sd", sigma=priors.dow_scale, dims="series")
+        cell_sd = pm.HalfNormal("deviation_cell_sd", sigma=priors.interaction_scale, dims="series")
+        dev_dow = pm.ZeroSumNormal("deviation_dow_raw", sigma=1.0, dims=("series", "dow"))
+        dev_slot = pm.ZeroSumNormal("deviation_slot_raw", sigma=1.0, dims=("series", "slot"))
+        dev_cell = pm.ZeroSumNormal(
+            "deviation_cell_raw", sigma=1.0, n_zerosum_axes=2, dims=("series", "dow", "slot")
+        )
+        deviation = main_sd[:, None, None] * (dev_dow[:, :, None] + dev_slot[:, None, :]) + (
+            cell_sd[:, None, None] * dev_cell
+        )
+        week_log_rate = pm.Deterministic(
+            "week_log_rate",
+            baseline[:, None, None] + shared[None, :, :] + deviation,
+            dims=("series", "dow", "slot"),
+        )
+        log_rate = week_log_rate[series_of_bin, dow, slot]
+        if spec.trend:
+            trend = pm.Normal("trend", 0.0, priors.trend_sigma, dims="series")
+            log_rate = log_rate + trend[series_of_bin] * years
+        if spec.holidays is not None:
+            holiday_effect = pm.Normal("holiday_effect", 0.0, priors.holiday_sigma, dims="series")
+            log_rate = log_rate + holiday_effect[series_of_bin] * holiday
+        if spec.latent_daily:
+            rho = pm.Beta("latent_rho", alpha=3.0, beta=2.0, dims="series")
+            latent_sd = pm.HalfNormal("latent_sd", sigma=priors.latent_scale, dims="series")
+            innovation = pm.Normal("latent_innovation", 0.0, 1.0, dims=("series", "day"))
+            paths = [
+                _ar1_from_innovations(innovation[s], rho[s], latent_sd[s], data.n_days)
+                for s in range(n_series)
+            ]
+            latent = pm.Deterministic("latent", pt.stack(paths), dims=("series", "day"))
+            log_rate = log_rate + latent[series_of_bin, day]
+        mean = pt.exp(log_rate) * exposure
+        if spec.observation == "negbin":
+            dispersion = _dispersion(spec, series=n_series, centred=False)
+            pm.NegativeBinomial(
+                "arrivals",
+                mu=mean,
+                alpha=dispersion[series_of_bin, slot],
+                observed=count,
+                dims="bin",
+            )
+        else:
+            pm.Poisson("arrivals", mu=mean, observed=count, dims="bin")
+    return model

@@ -1,0 +1,424 @@
+"""Predictive count distributions for arbitrary windows, from a compact posterior.
+
+For each posterior draw d the expected count in a window [a, b) is Λ_d = ∫_a^b λ_d(t) dt, with
+λ_d piecewise constant on the model's bins (a bin partly inside the window counts pro rata, closed
+hours count zero, daylight-saving days have 23 or 25 hours). Days after the history get latent
+deviations simulated forward from each draw's AR(1) with a fixed seed (and, with the within-day
+term, shape weights drawn per day from a generator seeded by the day), so a query always gives the
+same answer from the same version. The annual season, if any, is a smooth function of the date.
+The predictive count is the mixture over draws of Poisson(Λ_d), summarised exactly by
+:mod:`models.prediction.mixture`.
+
+A negative binomial model (``spec.observation == "negbin"``) is the same Poisson mixture with
+one more factor inside Λ_d: each bin's rate is multiplied by Gamma(k_d, k_d) noise, k_d the
+draw's dispersion for the bin's slot of the day. The noise of a bin comes from a generator seeded
+by the version seed and the bin's absolute index (its UTC start divided by the bin width), so a
+bin gets the same noise in every query and windows, sub-windows and totals stay consistent. It is
+stratified across draws: draw d gets the gamma quantile at u_d = (π(d) + v_d) / D, π a random
+permutation of the D draws and v_d uniform on [0, 1), so each u_d is uniform (the law per draw is
+exactly the gamma) while the D values fill every 1/D stratum once. A one-bin window is then
+within about 1e-4 of the negative binomial CDF the model was fitted with (independent gamma
+draws miss it by about 0.5 / sqrt(D), 0.01-0.02 for D = 2000). docs/calibration.md gives the
+measurements behind this choice over a per-draw negative binomial with a moment-matched window
+dispersion.
+
+This module imports numpy, pandas and scipy only: answering a query never loads PyMC.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from scipy import special
+
+from models.exceptions import InputError, WindowError
+from models.prediction.mixture import MixtureSummary, summarise
+from models.prediction.posterior import BinTable, CompactPosterior
+from models.ratemodel.bases import annual_basis, within_day_basis
+from models.ratemodel.binning import check_zone, local_features
+
+__all__ = [
+    "DEFAULT_LEVELS",
+    "MAX_HORIZON_DAYS",
+    "Forecast",
+    "expected_counts",
+    "forecast",
+    "parse_instant",
+    "parse_step",
+    "split_range",
+]
+
+DEFAULT_LEVELS: tuple[float, ...] = (0.8, 0.95)
+#: Furthest a window may end after the last history day, in days (trend extrapolation beyond a
+#: year is rarely trustworthy).
+MAX_HORIZON_DAYS = 400
+_BLOCK_BINS = 2048
+_NS_PER_MINUTE = 60 * 10**9
+# Keeps the bin-noise streams apart from the latent forward simulation, which uses the seed alone.
+_NOISE_STREAM = 0x6E6F697365
+#: Bins whose gamma noise each loaded negative binomial version keeps (at 2,000 draws, 8 MB).
+NOISE_CACHE_BINS = 1024
+# Beyond this dispersion the gamma noise sd (1/sqrt(k)) is below 1e-4: the bin is Poisson.
+_POISSON_DISPERSION = 1e8
+
+
+def parse_instant(text: str | dt.datetime, *, tz: str | None = None) -> pd.Timestamp:
+    """Parse an ISO 8601 instant; a naive value is read as local time in ``tz``.
+
+    Examples
+    --------
+    >>> parse_instant("2026-03-09T09:00", tz="America/Halifax").isoformat()
+    '2026-03-09T09:00:00-03:00'
+    """
+    try:
+        stamp = pd.Timestamp(text)
+    except (ValueError, TypeError) as exc:
+        raise WindowError(f"time {text!r} is not an ISO 8601 date-time") from exc
+    if stamp is pd.NaT:
+        raise WindowError(f"time {text!r} is not an ISO 8601 date-time")
+    if stamp.tzinfo is None:
+        if tz is None:
+            raise WindowError(
+                f"time {text!s} has no UTC offset and no zone was given; add an offset "
+                "(e.g. 2026-03-09T09:00-03:00) or a zone"
+            )
+        check_zone(tz)
+        try:
+            stamp = stamp.tz_localize(tz, nonexistent="raise", ambiguous="raise")
+        except Exception as exc:  # pandas raises NonExistentTimeError / AmbiguousTimeError
+            raise WindowError(
+                f"local time {text!s} in {tz} does not exist or is ambiguous (daylight-saving "
+                "change); give a UTC offset"
+            ) from exc
+    return stamp
+
+
+def parse_step(text: str) -> pd.Timedelta:
+    """Parse a window step such as ``15min``, ``30min``, ``1h`` or ``1d`` (whole minutes)."""
+    try:
+        step = pd.Timedelta(text)
+    except (ValueError, TypeError) as exc:
+        raise WindowError(f"step {text!r} is not a duration like 15min, 1h or 1d") from exc
+    if step <= pd.Timedelta(0) or step % pd.Timedelta(minutes=1) != pd.Timedelta(0):
+        raise WindowError(f"step {text!r} must be a positive whole number of minutes")
+    return step
+
+
+def split_range(
+    start: pd.Timestamp, end: pd.Timestamp, step: pd.Timedelta | None
+) -> tuple[pd.DatetimeIndex, pd.DatetimeIndex]:
+    """Cut ``[start, end)`` into consecutive windows of ``step`` (the last may be shorter)."""
+    if end <= start:
+        raise WindowError(
+            f"window end {end.isoformat()} is not after its start {start.isoformat()}"
+        )
+    if step is None:
+        return pd.DatetimeIndex([start]), pd.DatetimeIndex([end])
+    starts = pd.date_range(start, end, freq=step, inclusive="left")
+    ends = pd.DatetimeIndex(starts[1:].append(pd.DatetimeIndex([end])))
+    return starts, ends
+
+
+def _check_windows(
+    posterior: CompactPosterior,
+    starts: pd.DatetimeIndex,
+    ends: pd.DatetimeIndex,
+    horizon_days: int,
+) -> None:
+    if len(starts) != len(ends):
+        raise WindowError(f"{len(starts)} window starts but {len(ends)} ends")
+    if len(starts) == 0:
+        raise WindowError("no windows requested; give at least one start and end")
+    if starts.tz is None or ends.tz is None:
+        raise WindowError("window times must carry a UTC offset or zone")
+    bad = np.flatnonzero(ends.as_unit("ns").asi8 <= starts.as_unit("ns").asi8)
+    if bad.size:
+        i = int(bad[0])
+        raise WindowError(
+            f"window {i}: end {ends[i].isoformat()} is not after start {starts[i].isoformat()}"
+        )
+    cal = posterior.calendar
+    first = pd.Timestamp(cal.first_day).tz_localize(
+        cal.tz, nonexistent="shift_forward", ambiguous=True
+    )
+    early = np.flatnonzero(starts.as_unit("ns").asi8 < first.value)
+    if early.size:
+        i = int(early[0])
+        raise WindowError(
+            f"window {i} starts {starts[i].isoformat()}, before the history begins "
+            f"({first.isoformat()}); windows must start on or after it"
+        )
+    limit_day = posterior.history_end + dt.timedelta(days=horizon_days)
+    limit = pd.Timestamp(limit_day).tz_localize(cal.tz, nonexistent="shift_forward", ambiguous=True)
+    late = np.flatnonzero(ends.as_unit("ns").asi8 > limit.value)
+    if late.size:
+        i = int(late[0])
+        raise WindowError(
+            f"window {i} ends {ends[i].isoformat()}, beyond the forecast horizon of {horizon_days} "
+            f"days after the history ({limit.isoformat()})"
+        )
+
+
+def expected_counts(
+    posterior: CompactPosterior,
+    starts: pd.DatetimeIndex,
+    ends: pd.DatetimeIndex,
+    *,
+    horizon_days: int = MAX_HORIZON_DAYS,
+) -> np.ndarray:
+    """Expected count Λ per draw and window, shape ``(draw, window)`` (Fortran-ordered).
+
+    Windows are grouped into clusters of overlapping or touching spans, each laid on the model's
+    bin grid in blocks, so memory stays bounded however far apart or long the windows are.
+    """
+    _check_windows(posterior, starts, ends, horizon_days)
+    cal = posterior.calendar
+    bin_ns = cal.bin_minutes * _NS_PER_MINUTE
+    s_ns, e_ns = starts.as_unit("ns").asi8, ends.as_unit("ns").asi8
+    order = np.argsort(s_ns, kind="stable")
+    result = np.empty((len(starts), posterior.n_draws))
+    cluster: list[int] = []
+    cluster_end = -1
+    for i in order:
+        if cluster and s_ns[i] > cluster_end:
+            _integrate_cluster(posterior, np.asarray(cluster), s_ns, e_ns, bin_ns, result)
+            cluster = []
+        cluster.append(int(i))
+        cluster_end = max(cluster_end, int(e_ns[i])) if len(cluster) > 1 else int(e_ns[i])
+    _integrate_cluster(posterior, np.asarray(cluster), s_ns, e_ns, bin_ns, result)
+    # A (draw, window) view that keeps each window's draws contiguous, as the mixture wants them.
+    return result.T
+
+
+def _integrate_cluster(
+    posterior: CompactPosterior,
+    members: np.ndarray,
+    s_ns: np.ndarray,
+    e_ns: np.ndarray,
+    bin_ns: int,
+    out: np.ndarray,
+) -> None:
+    cal = posterior.calendar
+    lo, hi = int(s_ns[members].min()), int(e_ns[members].max())
+    table = posterior.bin_table
+    if not table.covers(lo, hi):
+        # Beyond the cached horizon (a caller-set longer horizon): lay the days out afresh.
+        _, _, days, _ = local_features(
+            pd.DatetimeIndex(np.array([lo, hi - 1], dtype="datetime64[ns]")).tz_localize("UTC"),
+            tz=cal.tz,
+            bin_minutes=cal.bin_minutes,
+        )
+        table = BinTable.build(
+            cal, posterior.opening, days[0].astype(dt.date), (days[1] + 1).astype(dt.date)
+        )
+    span = table.span(lo, hi)
+    edges = table.edges[span]
+    dow, slot, day = table.dow[span], table.slot[span], table.day[span]
+    years, holiday, open_share = table.years[span], table.holiday[span], table.open_share[span]
+    latent = posterior.latent_by_day(int(day.max()))
+    bin_hours = cal.bin_minutes / 60.0
+    # Work bin-major, (bin, draw): every gather below then reads whole contiguous rows.
+    # Every window start and end is an "endpoint" whose cumulative integral we need.
+    points = np.concatenate([s_ns[members], e_ns[members]])
+    index = np.clip(np.searchsorted(edges, points, side="right") - 1, 0, len(edges) - 1)
+    within = (points - edges[index]) / bin_ns
+    cumulative = np.empty((len(points), posterior.n_draws))
+    offset = np.zeros(posterior.n_draws)
+    week = posterior.week_by_cell
+    draws = posterior.as_float64
+    trend = draws["trend"][None, :]
+    holiday_effect = draws["holiday_effect"][None, :]
+    spec = posterior.spec
+    phase = table.phase[span]
+    if spec.annual_harmonics:
+        draws_annual = np.asarray(posterior.annual, dtype=np.float64).T  # (term, draw)
+    if spec.within_day:
+        within_basis = within_day_basis(spec.slots_per_day, spec.within_day)
+    for b0 in range(0, len(edges), _BLOCK_BINS):
+        b1 = min(b0 + _BLOCK_BINS, len(edges))
+        block = slice(b0, b1)
+        log_rate = (
+            week[dow[block], slot[block]]
+            + years[block, None] * trend
+            + holiday[block, None] * holiday_effect
+            + latent[day[block]]
+        )
+        if spec.annual_harmonics:
+            log_rate += annual_basis(phase[block], spec.annual_harmonics) @ draws_annual
+        if spec.within_day:
+            days, first_row = np.unique(day[block], return_inverse=True)
+            weights = posterior.within_by_day(days)  # (day, term, draw)
+            shape = within_basis[slot[block]]  # (bin, term)
+            for term in range(spec.within_day):  # one (bin, draw) temporary at a time
+                log_rate += shape[:, term, None] * weights[first_row, term]
+        per_bin = np.exp(log_rate) * (open_share[block] * bin_hours)[:, None]
+        if spec.observation == "negbin":
+            per_bin *= _cached_noise(posterior, edges[block] // bin_ns, slot[block])
+        before = offset[None, :] + np.cumsum(per_bin, axis=0) - per_bin
+        here = np.flatnonzero((index >= b0) & (index < b1))
+        local = index[here] - b0
+        cumulative[here] = before[local] + per_bin[local] * within[here, None]
+        offset = offset + per_bin.sum(axis=0)
+    n = len(members)
+    out[members] = cumulative[n:] - cumulative[:n]
+
+
+def _cached_noise(
+    posterior: CompactPosterior, bin_ids: np.ndarray, slots: np.ndarray
+) -> np.ndarray:
+    """Gamma noise of each bin, ``(bin, draw)``, from the version's bin-noise cache.
+
+    A bin's noise is fixed by the version seed and the bin's index, so it is computed once (the
+    gamma quantiles cost about a millisecond a bin for 2,000 draws) and kept for the
+    :data:`NOISE_CACHE_BINS` most recently used bins of each loaded version.
+    """
+    lock, cache = posterior.noise_cache
+    out = np.empty((len(bin_ids), posterior.n_draws))
+    with lock:
+        missing = []
+        for j, bin_id in enumerate(bin_ids.tolist()):
+            column = cache.get(bin_id)
+            if column is None:
+                missing.append(j)
+            else:
+                cache.move_to_end(bin_id)
+                out[j] = column
+    if missing:
+        rows = np.asarray(missing)
+        # Rounded to float32 as stored, so a bin's noise is the same computed or cached.
+        fresh = _bin_noise(posterior, bin_ids[rows], slots[rows]).T.astype(np.float32)
+        out[rows] = fresh
+        with lock:
+            for j, column in zip(rows.tolist(), fresh, strict=True):
+                cache[int(bin_ids[j])] = column
+            while len(cache) > NOISE_CACHE_BINS:
+                cache.popitem(last=False)
+    return out
+
+
+def _bin_noise(posterior: CompactPosterior, bin_ids: np.ndarray, slots: np.ndarray) -> np.ndarray:
+    """Gamma(k, k) rate multipliers, shape ``(draw, bin)``, fixed per version and bin.
+
+    ``k`` is the draw's dispersion for the bin's slot of the day.
+    """
+    if posterior.dispersion is None:
+        raise InputError("a negative binomial posterior has no dispersion draws")
+    shapes = np.asarray(posterior.dispersion, dtype=np.float64)[:, slots]
+    poisson = ~(shapes < _POISSON_DISPERSION)
+    shapes = np.where(poisson, 1.0, shapes)
+    draws = posterior.n_draws
+    levels = np.empty(shapes.shape)
+    for j, bin_id in enumerate(bin_ids.tolist()):
+        # Bins before 1970 have negative ids; SeedSequence wants non-negative integers.
+        entropy = [posterior.seed, _NOISE_STREAM, bin_id % 2**64]
+        rng = np.random.Generator(np.random.PCG64(np.random.SeedSequence(entropy)))
+        levels[:, j] = (rng.permutation(draws) + rng.random(draws)) / draws
+    noise = special.gammaincinv(shapes, levels) / shapes
+    noise[poisson] = 1.0
+    return np.asarray(noise)
+
+
+@dataclass(frozen=True)
+class Forecast:
+    """Predictive summaries for a list of windows (and optionally their total)."""
+
+    starts: pd.DatetimeIndex
+    ends: pd.DatetimeIndex
+    summary: MixtureSummary
+    tz: str
+    total: MixtureSummary | None = None
+
+    def rows(self) -> list[dict[str, Any]]:
+        """One JSON-ready dict per window."""
+        return _rows(self.summary, self.starts, self.ends, self.tz)
+
+    def total_row(self) -> dict[str, Any] | None:
+        """The total over all windows, or None if not requested."""
+        if self.total is None:
+            return None
+        return _rows(self.total, self.starts[:1], self.ends[-1:], self.tz)[0]
+
+
+def _rows(
+    summary: MixtureSummary, starts: pd.DatetimeIndex, ends: pd.DatetimeIndex, tz: str
+) -> list[dict[str, Any]]:
+    local_starts = starts.tz_convert(tz)
+    local_ends = ends.tz_convert(tz)
+    rows = []
+    for i in range(len(starts)):
+        row: dict[str, Any] = {
+            "start": local_starts[i].isoformat(),
+            "end": local_ends[i].isoformat(),
+            "mean": float(summary.mean[i]),
+            "sd": float(summary.sd[i]),
+            "p_zero": float(summary.p_zero[i]),
+            "intervals": {
+                _key(level): [int(lo[i]), int(hi[i])]
+                for level, (lo, hi) in summary.intervals.items()
+            },
+            "quantiles": {_key(q): int(v[i]) for q, v in summary.quantiles.items()},
+        }
+        if summary.at_least:
+            row["at_least"] = {str(k): float(p[i]) for k, p in summary.at_least.items()}
+        rows.append(row)
+    return rows
+
+
+def _key(value: float) -> str:
+    return format(value, "g")
+
+
+def forecast(
+    posterior: CompactPosterior,
+    starts: pd.DatetimeIndex,
+    ends: pd.DatetimeIndex,
+    *,
+    levels: Sequence[float] = DEFAULT_LEVELS,
+    quantiles: Sequence[float] = (),
+    at_least: Sequence[int] = (),
+    total: bool = False,
+    horizon_days: int = MAX_HORIZON_DAYS,
+) -> Forecast:
+    """Predictive count distribution for each window ``[starts[i], ends[i])``.
+
+    Parameters
+    ----------
+    posterior
+        Compact posterior of one series version.
+    starts, ends
+        Tz-aware window bounds.
+    levels
+        Central interval levels in (0, 1).
+    quantiles
+        Quantile levels in (0, 1); reported exactly from the mixture CDF.
+    at_least
+        Thresholds k for P(N >= k).
+    total
+        Also summarise the total over all windows (which must not overlap), from the same draws.
+    horizon_days
+        Latest allowed window end, in days after the history.
+    """
+    lam = expected_counts(posterior, starts, ends, horizon_days=horizon_days)
+    summary = summarise(
+        lam, quantiles=tuple(quantiles), levels=tuple(levels), at_least=tuple(at_least)
+    )
+    total_summary = None
+    if total:
+        s_ns, e_ns = starts.as_unit("ns").asi8, ends.as_unit("ns").asi8
+        order = np.argsort(s_ns)
+        if np.any(s_ns[order][1:] < e_ns[order][:-1]):
+            raise InputError("a total over windows needs windows that do not overlap")
+        total_summary = summarise(
+            lam.sum(axis=1, keepdims=True),
+            quantiles=tuple(quantiles),
+            levels=tuple(levels),
+            at_least=tuple(at_least),
+        )
+    return Forecast(
+        starts=starts, ends=ends, summary=summary, tz=posterior.calendar.tz, total=total_summary
+    )

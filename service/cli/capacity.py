@@ -1,0 +1,362 @@
+"""Capacity commands: ``ratecast staff``, ``ratecast update`` and ``ratecast simulate``.
+
+The documents come from :mod:`service.queries.capacity`, shared with the capacity routes of the
+HTTP API. Every staffing output carries :data:`models.capacity.staffing.STAFFING_CAUTION`.
+"""
+
+from __future__ import annotations
+
+import argparse
+import csv
+import datetime as dt
+import io
+import json
+import sys
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from models.capacity.staffing import (
+    STAFFING_CAUTION,
+    ServiceTarget,
+)
+from models.exceptions import InputError
+from models.prediction.windows import (
+    parse_instant,
+    parse_step,
+    split_range,
+)
+from service.cli.common import grid, number_list, store_from_args
+from service.queries.capacity import (
+    plan_windows,
+    read_observed,
+    staffing_document,
+    update_document,
+)
+from service.queries.forecast import flat_row
+
+__all__ = ["register", "staffing_csv", "staffing_table", "update_csv", "update_table"]
+
+# ----------------------------------------------------------------------------- rendering
+
+
+def _pct(value: float) -> str:
+    return f"{100.0 * value:.1f}%"
+
+
+def _span(start: str, end: str) -> str:
+    a, b = pd.Timestamp(start), pd.Timestamp(end)
+    return f"{a.strftime('%a %Y-%m-%d %H:%M')}-{b.strftime('%H:%M')}"
+
+
+def staffing_table(doc: dict[str, Any]) -> str:
+    """Fixed-width tables (intervals, then days) with the caution underneath."""
+    p = doc["meet_probability"]
+    given = "given" in doc["intervals"][0]
+    headers = ["interval", "mean", f"q{p:g}", "erlangs", "N mean", "E[SL]", "P(miss)"]
+    headers += [f"N p{p:g}", "E[SL]", "P(miss)", "paid mean", f"paid p{p:g}"]
+    if given:
+        headers += ["N given", "E[SL]", "P(miss)"]
+    body = []
+    for row in doc["intervals"]:
+        plug, sure = row["plug_in"], row["assured"]
+        cells = [
+            _span(row["start"], row["end"]),
+            f"{row['mean_arrivals']:.1f}",
+            str(row["quantile_arrivals"]),
+            f"{row['mean_load_erlangs']:.2f}",
+            str(plug["agents"]),
+            _pct(plug["expected_service_level"]),
+            f"{plug['miss_probability']:.3f}",
+            str(sure["agents"]),
+            _pct(sure["expected_service_level"]),
+            f"{sure['miss_probability']:.3f}",
+            str(plug["scheduled"]),
+            str(sure["scheduled"]),
+        ]
+        if given:
+            g = row["given"]
+            cells += [
+                str(g["agents"]),
+                _pct(g["expected_service_level"]),
+                f"{g['miss_probability']:.3f}",
+            ]
+        body.append(cells)
+    target = doc["target"]
+    patience = (
+        f", mean patience {target['patience_seconds']:g} s"
+        if target["patience_seconds"] is not None
+        else ""
+    )
+    lines = [
+        f"{doc['series']} {doc['model_version']} ({doc['tz']}): staffing for "
+        f"{_pct(target['share'])} answered within {target['answer_within_seconds']:g} s, "
+        f"handle time {target['handle_time_seconds']:g} s{patience} ({target['queue']}), "
+        f"shrinkage {_pct(doc['shrinkage'])}",
+        *grid(headers, body),
+        "",
+        *grid(
+            [
+                "day",
+                "mean arrivals",
+                "agent-h mean",
+                f"agent-h p{p:g}",
+                "paid-h mean",
+                f"paid-h p{p:g}",
+            ],
+            [
+                [
+                    d["day"],
+                    f"{d['mean_arrivals']:.0f}",
+                    f"{d['plug_in_hours']:.2f}",
+                    f"{d['assured_hours']:.2f}",
+                    f"{d['plug_in_paid_hours']:.2f}",
+                    f"{d['assured_paid_hours']:.2f}",
+                ]
+                for d in doc["days"]
+            ],
+        ),
+        "",
+        f"N mean: {doc['definitions']['plug_in']}. N p{p:g}: {doc['definitions']['assured']}.",
+        f"P(miss): {doc['definitions']['miss_probability']}. Paid: "
+        f"{doc['definitions']['scheduled']}.",
+        "",
+        f"CAUTION: {doc['caution']}",
+    ]
+    return "\n".join(lines) + "\n"
+
+
+def staffing_csv(doc: dict[str, Any]) -> str:
+    """One flat row per interval; the caution is the last line, as a comment."""
+    rows = []
+    for row in doc["intervals"]:
+        flat: dict[str, Any] = {
+            "start": row["start"],
+            "end": row["end"],
+            "mean_arrivals": round(row["mean_arrivals"], 3),
+            "quantile_arrivals": row["quantile_arrivals"],
+            "mean_load_erlangs": round(row["mean_load_erlangs"], 4),
+        }
+        for policy in ("plug_in", "assured", "given"):
+            if policy in row:
+                for key, value in row[policy].items():
+                    flat[f"{policy}_{key}"] = round(value, 6) if isinstance(value, float) else value
+        rows.append(flat)
+    buffer = io.StringIO()
+    writer = csv.DictWriter(buffer, fieldnames=list(rows[0]))
+    writer.writeheader()
+    writer.writerows(rows)
+    buffer.write(f"# {doc['caution']}\n")
+    return buffer.getvalue()
+
+
+def update_table(doc: dict[str, Any]) -> str:
+    """Before and after per window, with the update's facts and the caution."""
+    first = doc["windows"][0]
+    headers = ["window", "before", "updated", "sd"]
+    headers += [f"{float(k) * 100:g}% interval" for k in first["intervals"]]
+    headers += [f"q{float(k) * 100:g}" for k in first["quantiles"]]
+    body = []
+    for row in doc["windows"]:
+        cells = [
+            _span(row["start"], row["end"]),
+            f"{row['before']['mean']:.1f}",
+            f"{row['mean']:.1f}",
+            f"{row['sd']:.1f}",
+        ]
+        cells += [f"{lo}-{hi}" for lo, hi in row["intervals"].values()]
+        cells += [str(v) for v in row["quantiles"].values()]
+        body.append(cells)
+    latent = doc["latent_today"]
+    level = (
+        ""
+        if latent is None
+        else f"; today's level x{np.exp(latent['mean']):.3f} (log sd {latent['sd']:.3f})"
+    )
+    lines = [
+        f"{doc['series']} {doc['model_version']} ({doc['tz']}): forecast updated with "
+        f"{doc['observed_total']} arrivals observed on {doc['day']} (expected "
+        f"{doc['expected_before']:.1f} before){level}; effective draws "
+        f"{doc['effective_sample_size']:.0f} of {doc['draws']}",
+        *grid(headers, body),
+        "",
+        doc["caution"],
+    ]
+    return "\n".join(lines) + "\n"
+
+
+def update_csv(doc: dict[str, Any]) -> str:
+    """One flat row per window, with the mean before the update."""
+    rows = [{**flat_row(r), "before_mean": round(r["before"]["mean"], 3)} for r in doc["windows"]]
+    buffer = io.StringIO()
+    writer = csv.DictWriter(buffer, fieldnames=list(rows[0]))
+    writer.writeheader()
+    writer.writerows(rows)
+    return buffer.getvalue()
+
+
+# ----------------------------------------------------------------------------- commands
+
+
+def _common(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--series", required=True)
+    p.add_argument("--version", default=None, help="a stored version (default: current)")
+    p.add_argument(
+        "--store", default=None, help="store folder (default $RATECAST_STORE or ./store)"
+    )
+
+
+def _add_staff(sub: Any) -> None:
+    p = sub.add_parser(
+        "staff",
+        help="agents per interval for a service-level target, under forecast uncertainty",
+        epilog=STAFFING_CAUTION,
+    )
+    _common(p)
+    p.add_argument("--start", required=True, help="ISO 8601; local time of the series if no offset")
+    p.add_argument("--end", required=True, help="ISO 8601 (exclusive)")
+    p.add_argument("--step", default="30min", help="plan interval: 15min, 30min or 1h")
+    p.add_argument("--handle-time", type=float, required=True, help="mean handle time, seconds")
+    p.add_argument("--answer-within", type=float, required=True, help="target answer time, seconds")
+    p.add_argument("--target", type=float, required=True, help="share answered in time, e.g. 0.8")
+    p.add_argument("--patience", type=float, default=None, help="mean patience, seconds (Erlang A)")
+    p.add_argument("--shrinkage", type=float, default=0.0, help="share of paid time off the queue")
+    p.add_argument(
+        "--meet-probability",
+        type=float,
+        default=0.9,
+        help="probability of meeting the target over the forecast's arrival counts",
+    )
+    p.add_argument(
+        "--min-agents", type=int, default=1, help="floor for intervals that can get calls"
+    )
+    p.add_argument(
+        "--agents", default=None, help="a staffing to evaluate: one number, or one per interval"
+    )
+    p.add_argument("--format", choices=("table", "json", "csv"), default="table")
+    p.set_defaults(run=_run_staff)
+
+
+def _run_staff(args: argparse.Namespace) -> int:
+    stored = store_from_args(args).load(args.series, args.version)
+    tz = stored.posterior.calendar.tz
+    starts, ends = plan_windows(args.start, args.end, step=args.step, tz=tz)
+    target = ServiceTarget(
+        handle_time=args.handle_time,
+        answer_within=args.answer_within,
+        share=args.target,
+        patience=args.patience,
+    )
+    agents = number_list(args.agents, option="--agents", kind=int) if args.agents else None
+    doc = staffing_document(
+        stored,
+        starts,
+        ends,
+        target=target,
+        meet_probability=args.meet_probability,
+        shrinkage=args.shrinkage,
+        min_agents=args.min_agents,
+        agents=agents,
+    )
+    if args.format == "json":
+        print(json.dumps(doc, indent=2))
+    elif args.format == "csv":
+        sys.stdout.write(staffing_csv(doc))
+    else:
+        sys.stdout.write(staffing_table(doc))
+    return 0
+
+
+def _add_update(sub: Any) -> None:
+    p = sub.add_parser(
+        "update", help="revise today's forecast from the counts observed so far today"
+    )
+    _common(p)
+    p.add_argument(
+        "--observed",
+        required=True,
+        help="CSV/Parquet of today's counts: columns start,count (and end; default one bin)",
+    )
+    p.add_argument("--start", default=None, help="forecast from (default: end of the observations)")
+    p.add_argument("--end", default=None, help="forecast until (default: end of today)")
+    p.add_argument("--step", default=None, help="window length (default: the model's bin)")
+    p.add_argument("--levels", default="0.8,0.95", help="central interval levels")
+    p.add_argument("--quantiles", default="", help="quantile levels, e.g. 0.5,0.9")
+    p.add_argument("--seed", type=int, default=None, help="seed (default: the version's own)")
+    p.add_argument("--format", choices=("table", "json", "csv"), default="table")
+    p.set_defaults(run=_run_update)
+
+
+def _run_update(args: argparse.Namespace) -> int:
+    stored = store_from_args(args).load(args.series, args.version)
+    calendar = stored.posterior.calendar
+    tz = calendar.tz
+    o_starts, o_ends, counts = read_observed(args.observed, tz=tz, bin_minutes=calendar.bin_minutes)
+    if len(o_ends) == 0:
+        raise InputError(f"observed-counts file {args.observed} has no rows")
+    start = parse_instant(args.start, tz=tz) if args.start else o_ends.max().tz_convert(tz)
+    if args.end:
+        end = parse_instant(args.end, tz=tz)
+    else:
+        next_day = start.tz_convert(tz).date() + dt.timedelta(days=1)
+        end = pd.Timestamp(next_day).tz_localize(tz, nonexistent="shift_forward", ambiguous=True)
+    step = parse_step(args.step) if args.step else pd.Timedelta(minutes=calendar.bin_minutes)
+    starts, ends = split_range(start, end, step)
+    doc = update_document(
+        stored,
+        o_starts,
+        o_ends,
+        counts,
+        starts,
+        ends,
+        levels=number_list(args.levels, option="--levels"),
+        quantiles=number_list(args.quantiles, option="--quantiles"),
+        seed=args.seed,
+    )
+    if args.format == "json":
+        print(json.dumps(doc, indent=2))
+    elif args.format == "csv":
+        sys.stdout.write(update_csv(doc))
+    else:
+        sys.stdout.write(update_table(doc))
+    return 0
+
+
+def _add_simulate(sub: Any) -> None:
+    p = sub.add_parser(
+        "simulate", help="sample arrival times from the posterior process (CSV or Parquet)"
+    )
+    _common(p)
+    p.add_argument("--start", required=True, help="ISO 8601; local time of the series if no offset")
+    p.add_argument("--end", required=True, help="ISO 8601 (exclusive)")
+    p.add_argument("--replicates", type=int, default=1, help="independent streams to sample")
+    p.add_argument("--seed", type=int, default=None, help="seed (default: the version's own)")
+    p.add_argument("--out", required=True, help="output file ending in .csv or .parquet")
+    p.set_defaults(run=_run_simulate)
+
+
+def _run_simulate(args: argparse.Namespace) -> int:
+    from models.prediction.simulate import simulate_arrivals, write_arrivals
+
+    stored = store_from_args(args).load(args.series, args.version)
+    tz = stored.posterior.calendar.tz
+    start, end = parse_instant(args.start, tz=tz), parse_instant(args.end, tz=tz)
+    arrivals = simulate_arrivals(
+        stored.posterior, start, end, replicates=args.replicates, seed=args.seed
+    )
+    path = write_arrivals(arrivals, args.out)
+    counts = arrivals.counts()
+    print(
+        f"wrote {counts.sum()} arrivals in {counts.size} replicate(s) of "
+        f"{start.isoformat()}..{end.isoformat()} to {path} "
+        f"(per replicate: mean {counts.mean():.1f}, min {counts.min()}, max {counts.max()})"
+    )
+    return 0
+
+
+def register(subparsers: Any) -> None:
+    """Add ``staff``, ``update`` and ``simulate`` to the ``ratecast`` command line."""
+    _add_staff(subparsers)
+    _add_update(subparsers)
+    _add_simulate(subparsers)

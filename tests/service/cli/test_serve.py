@@ -1,0 +1,40 @@
+"""``ratecast serve`` options: what is accepted, and what is refused with a clear message."""
+
+from __future__ import annotations
+
+import pytest
+
+from service.cli.app import build_parser
+from service.cli.serve import default_workers
+
+
+class TestServeOptions:
+    def test_defaults_listen_on_loopback_with_one_worker(
+        self, monkeypatch: pytest.MonkeyPatch
+    ) -> None:
+        monkeypatch.delenv("RATECAST_WORKERS", raising=False)
+        args = build_parser().parse_args(["serve"])
+        assert (args.host, args.port, args.workers, args.store) == ("127.0.0.1", 8000, 1, None)
+
+    def test_auto_means_one_worker_per_usable_cpu(self) -> None:
+        args = build_parser().parse_args(["serve", "--workers", "auto"])
+        assert args.workers == default_workers() >= 1
+
+    def test_workers_default_comes_from_the_environment(
+        self, monkeypatch: pytest.MonkeyPatch
+    ) -> None:
+        monkeypatch.setenv("RATECAST_WORKERS", "3")
+        assert build_parser().parse_args(["serve"]).workers == 3
+
+    @pytest.mark.parametrize(
+        ("option", "value", "message"),
+        [("--workers", "0", "whole number >= 1 or 'auto'"), ("--port", "70000", "1-65535")],
+    )
+    def test_bad_values_are_refused_naming_them(
+        self, option: str, value: str, message: str, capsys: pytest.CaptureFixture[str]
+    ) -> None:
+        with pytest.raises(SystemExit) as exit_info:
+            build_parser().parse_args(["serve", option, value])
+        assert exit_info.value.code == 2
+        err = capsys.readouterr().err
+        assert f"{option} {value!r}" in err and message in err
