@@ -17,7 +17,13 @@ import xarray as xr
 from models.fitting.options import GateThresholds
 from models.ratemodel.design import ModelData
 
-__all__ = ["Diagnostics", "GateThresholds", "check_diagnostics", "unobserved_cells"]
+__all__ = [
+    "Diagnostics",
+    "GateThresholds",
+    "check_diagnostics",
+    "divergence_locations",
+    "unobserved_cells",
+]
 
 
 @dataclass(frozen=True)
@@ -31,6 +37,7 @@ class Diagnostics:
     chains: int
     problems: tuple[str, ...] = ()
     sampling_seconds: float = 0.0
+    divergent_at: tuple[str, ...] = ()
 
     @property
     def ok(self) -> bool:
@@ -48,6 +55,7 @@ class Diagnostics:
             "chains": self.chains,
             "problems": list(self.problems),
             "sampling_seconds": round(self.sampling_seconds, 2),
+            "divergent_at": list(self.divergent_at),
         }
 
 
@@ -115,9 +123,16 @@ def check_diagnostics(
     min_ess = float(np.nanmin(ess))
     for label, value in ess[ess < thresholds.min_ess_bulk].sort_values().head(5).items():
         problems.append(f"bulk ESS {value:.0f} < {thresholds.min_ess_bulk:.0f} for {label}")
+    divergent_at: tuple[str, ...] = ()
     if divergences > thresholds.max_divergences:
+        divergent_at = tuple(divergence_locations(idata))
+        where = (
+            f" (divergent draws sit apart on {', '.join(n.split(':')[0] for n in divergent_at[:3])})"
+            if divergent_at
+            else ""
+        )
         problems.append(
-            f"{divergences} divergent transitions > {thresholds.max_divergences} allowed"
+            f"{divergences} divergent transitions > {thresholds.max_divergences} allowed{where}"
         )
     return Diagnostics(
         max_r_hat=max_r_hat,
@@ -126,4 +141,46 @@ def check_diagnostics(
         draws=draws,
         chains=chains,
         problems=tuple(problems),
+        divergent_at=divergent_at,
     )
+
+
+#: Deterministic or per-bin variables left out when locating divergences.
+_NOT_LOCATED = {"week_log_rate", "dispersion", "latent", "interaction", "within_day"}
+
+
+def divergence_locations(idata: az.InferenceData, top: int = 4) -> list[str]:
+    """The sampled parameters on which the divergent draws sit furthest from the others.
+
+    For each scalar (or entry of a variable with at most 200 entries) the mean over divergent
+    draws is compared with the mean over the other draws, in sds of the others; positive
+    variables are compared on the log scale (where funnels open). Returns up to ``top`` lines
+    ``"log interaction_sd: -4.1 vs -2.3 (z -2.2)"``, largest ``|z|`` first; empty without
+    divergences. A funnel shows as divergent draws at small scales (negative z on a log sd).
+    """
+    if "sample_stats" not in idata or "diverging" not in idata["sample_stats"]:
+        return []
+    diverging = np.asarray(idata["sample_stats"]["diverging"]).astype(bool)
+    if not diverging.any() or diverging.all():
+        return []
+    found: list[tuple[float, str]] = []
+    for name, values in idata["posterior"].data_vars.items():
+        if name in _NOT_LOCATED:
+            continue
+        array = np.asarray(values, dtype=float)
+        flat = array.reshape(array.shape[0], array.shape[1], -1)
+        if flat.shape[2] > 200:
+            continue
+        for j in range(flat.shape[2]):
+            label = str(name) if flat.shape[2] == 1 else f"{name}[{j}]"
+            x = flat[:, :, j]
+            if np.all(x > 0):
+                x, label = np.log(x), f"log {label}"
+            rest = x[~diverging]
+            sd = float(rest.std()) or 1.0
+            z = (float(x[diverging].mean()) - float(rest.mean())) / sd
+            found.append(
+                (abs(z), f"{label}: {x[diverging].mean():.3g} vs {rest.mean():.3g} (z {z:+.1f})")
+            )
+    found.sort(key=lambda item: -item[0])
+    return [text for _, text in found[:top]]
