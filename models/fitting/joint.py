@@ -16,9 +16,10 @@ from typing import Any
 
 import numpy as np
 
-from models.exceptions import FitRejected, InputError
+from models.exceptions import InputError
 from models.fitting.build import build_joint_model
 from models.fitting.compact import compact_from_fit
+from models.fitting.escalation import attempt_record, stronger_options
 from models.fitting.gate import Diagnostics, check_diagnostics
 from models.fitting.sampling import FitOptions, sample_model
 from models.prediction.posterior import CompactPosterior
@@ -78,14 +79,29 @@ class JointFit:
     spec: ModelSpec
     seed: int
     timings: dict[str, float]
+    options: FitOptions = dataclasses.field(default_factory=FitOptions)
+    retry: str | None = None
+    attempts: tuple[dict[str, Any], ...] = ()
 
 
 def fit_joint(data: JointData, spec: ModelSpec, *, options: FitOptions | None = None) -> JointFit:
-    """Fit the joint model with NUTS (PyMC, numba backend) and run the diagnostics gate."""
+    """Fit the joint model with NUTS and run the diagnostics gate; if it fails and
+    ``options.retry`` is on, fit once more with stronger settings and keep that attempt."""
     options = options or FitOptions()
-    idata, timings = sample_model(build_joint_model(data, spec), **options.sampling())
+    model = build_joint_model(data, spec)
+    idata, timings = sample_model(model, **options.sampling())
     diagnostics = check_diagnostics(idata, thresholds=options.thresholds)
-    return JointFit(idata, diagnostics, data, spec, options.seed, timings)
+    attempts = [attempt_record(options, diagnostics, timings["sampling_seconds"])]
+    retry = None
+    if not diagnostics.ok and options.retry:
+        options, retry = stronger_options(options, diagnostics)
+        idata, timings = sample_model(model, **options.sampling())
+        diagnostics = check_diagnostics(idata, thresholds=options.thresholds)
+        attempts.append(attempt_record(options, diagnostics, timings["sampling_seconds"]))
+    diagnostics = dataclasses.replace(diagnostics, sampling_seconds=timings["sampling_seconds"])
+    return JointFit(
+        idata, diagnostics, data, spec, options.seed, timings, options, retry, tuple(attempts)
+    )
 
 
 def joint_posteriors(
@@ -117,11 +133,22 @@ def publish_joint(
     force: bool = False,
     max_draws: int | None = 2000,
 ) -> dict[str, StoredVersion]:
-    """Publish every series of a joint fit (all or none: the gate is checked first)."""
+    """Publish every series of a joint fit (all or none: the gate is checked first); a forced
+    publish of a failing fit marks every version degraded.
+
+    Raises
+    ------
+    FitRejected
+        If the gate failed (after the retry of :func:`fit_joint`) and ``force`` is false.
+    """
+    from models.fitting.publish import fit_section, refusal
+
     if not fit.diagnostics.ok and not force:
-        raise FitRejected(
-            f"joint fit of {', '.join(fit.data.names)} failed the diagnostics gate; nothing published",
-            list(fit.diagnostics.problems),
+        raise refusal(
+            f"joint fit of {', '.join(fit.data.names)} (nothing published)",
+            fit.diagnostics,
+            fit.spec,
+            fit.retry,
         )
     posteriors = joint_posteriors(fit, openings=openings, max_draws=max_draws)
     published = {}
@@ -136,7 +163,12 @@ def publish_joint(
                 "observed_bins": len(member.count),
                 "arrivals": int(np.sum(member.count)),
             },
-            "fit": {"joint_with": [n for n in fit.data.names if n != name], **fit.timings},
+            "fit": {
+                "joint_with": [n for n in fit.data.names if n != name],
+                **fit_section(
+                    fit.options, fit.diagnostics, fit.retry, list(fit.attempts), fit.timings
+                ),
+            },
             "diagnostics": fit.diagnostics.to_dict(),
         }
         published[name] = store.publish(name, posterior, manifest=manifest)

@@ -46,6 +46,9 @@ class FitOptions:
         Draws kept in the compact posterior (thinned evenly across chains).
     keep_full_posterior
         Also store the full inference data beside the compact draws.
+    retry
+        When a fit fails the diagnostics gate, fit once more with stronger settings before
+        refusing it (:func:`models.fitting.escalation.stronger_options`).
     """
 
     draws: int = 1000
@@ -59,6 +62,7 @@ class FitOptions:
     max_stored_draws: int = 2000
     thresholds: GateThresholds = field(default_factory=GateThresholds)
     keep_full_posterior: bool = True
+    retry: bool = True
 
     def sampling(self) -> dict[str, Any]:
         """The options :func:`sample_model` takes, as keyword arguments."""
