@@ -27,7 +27,6 @@ from models.exceptions import InputError
 
 __all__ = [
     "BIN_MINUTES",
-    "DATA_RICH_CELL_COUNT",
     "MAX_ANNUAL_HARMONICS",
     "MAX_WITHIN_DAY",
     "OBSERVATIONS",
@@ -42,13 +41,6 @@ OBSERVATIONS: tuple[str, ...] = ("poisson", "negbin")
 #: Allowed bin widths in minutes; 1440 is a whole day (for daily counts, in a zone without
 #: daylight saving, where the time-of-day terms have nothing to describe and are left out).
 BIN_MINUTES: tuple[int, ...] = (15, 30, 60, 1440)
-#: Arrivals per weekly cell (day of week x slot) over the history from which the interaction and
-#: the per-slot dispersions are sampled centred: each cell's log rate is then known to about
-#: 1/sqrt(400) = 0.05, tighter than its prior, where a non-centred form mixes slowly (measured on
-#: 8 weeks of hourly pedestrian counts, ~4,800 per cell: bulk ESS of the interaction scale 172
-#: non-centred against 2,199 centred; docs/calibration.md). Sparse data keep the non-centred form
-#: (the centred interaction gave r_hat 1.7 on 4 weeks at ~6 arrivals an hour).
-DATA_RICH_CELL_COUNT = 400
 #: Most Fourier pairs of the annual season (more resolves features shorter than a month).
 MAX_ANNUAL_HARMONICS = 12
 #: Most within-day shape terms (and never more than half the slots of a day).
@@ -172,10 +164,10 @@ class ModelSpec:
     time-of-day terms are then left out.
 
     ``centred_interaction`` chooses how the day-of-week x time-of-day interaction (and the
-    per-slot dispersions) are parameterised: ``None`` (the default) decides from the data
-    (:func:`models.fitting.build.build_model`: centred when the history holds on average at least
-    :data:`DATA_RICH_CELL_COUNT` arrivals per weekly cell, non-centred otherwise); ``True`` or
-    ``False`` force it.
+    per-slot dispersions) are parameterised: ``None`` (the default) decides each from the data
+    (:func:`models.fitting.geometry.choose_geometry`: the interaction centred when its estimated
+    spread is well above the standard error of a cell, the dispersions centred when the counts
+    scatter clearly beyond Poisson; non-centred otherwise); ``True`` or ``False`` force both.
 
     ``annual_harmonics`` (0 = off) adds an annual season with that many Fourier pairs; it needs
     about two years of history to tell the season from the level and trend. ``within_day``

@@ -44,17 +44,14 @@ def _hourly(rate: float, days: int = 28):  # type: ignore[no-untyped-def]
     return make_model_data(binned, spec), spec
 
 
-@pytest.mark.parametrize(
-    ("rate", "centred"),
-    [(5.0, False), (150.0, True)],  # 4 weeks: 20 or 600 arrivals per weekly cell
-)
-def test_data_rich_series_are_sampled_centred(rate: float, centred: bool) -> None:
+def test_parameterisation_follows_the_data_and_can_be_forced() -> None:
+    # Constant-rate Poisson counts, 600 arrivals per weekly cell: no interaction and no scatter
+    # beyond Poisson, so both blocks stay non-centred however busy the series (the centred
+    # interaction funnelled on such data: docs/fit-gate.md); forcing still works.
     from models.fitting.build import build_model
 
-    data, spec = _hourly(rate)
+    data, spec = _hourly(150.0)
     names = {v.name for v in build_model(data, spec).free_RVs}
-    assert ("interaction" in names) is centred
-    assert ("interaction_raw" in names) is not centred
-    assert ("overdispersion_slot" in names) is centred
-    forced = {v.name for v in build_model(data, spec.with_(centred_interaction=False)).free_RVs}
-    assert "interaction_raw" in forced and "overdispersion_slot_raw" in forced
+    assert "interaction_raw" in names and "overdispersion_slot_raw" in names
+    forced = {v.name for v in build_model(data, spec.with_(centred_interaction=True)).free_RVs}
+    assert "interaction" in forced and "overdispersion_slot" in forced
