@@ -360,6 +360,7 @@ def main() -> None:
     parser.add_argument("--label", default="defaults", help="run label (results folder)")
     parser.add_argument("--sampler", default=None, choices=("pymc", "nutpie"))
     parser.add_argument("--target-accept", type=float, default=None)
+    parser.add_argument("--low-rank", action="store_true", help="nutpie's low-rank mass matrix")
     parser.add_argument("--tune", type=int, default=None)
     parser.add_argument("--draws", type=int, default=None)
     parser.add_argument("--redo", action="store_true", help="refit series already recorded")
@@ -375,6 +376,7 @@ def main() -> None:
             ("target_accept", args.target_accept),
             ("tune", args.tune),
             ("draws", args.draws),
+            ("low_rank", args.low_rank or None),
         )
         if v is not None
     }

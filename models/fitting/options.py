@@ -42,6 +42,9 @@ class FitOptions:
         gradient here, as pip-installed PyTensor finds no BLAS for its C code) or ``"c"``.
     target_accept
         NUTS target acceptance rate.
+    low_rank
+        nutpie only: adapt a low-rank modified mass matrix (captures a few strongly correlated
+        directions) instead of a diagonal one.
     max_stored_draws
         Draws kept in the compact posterior (thinned evenly across chains).
     keep_full_posterior
@@ -58,6 +61,7 @@ class FitOptions:
     sampler: Sampler = "pymc"
     backend: Backend = "numba"
     target_accept: float = 0.9
+    low_rank: bool = False
     progressbar: bool = True
     max_stored_draws: int = 2000
     thresholds: GateThresholds = field(default_factory=GateThresholds)
@@ -74,6 +78,7 @@ class FitOptions:
             "sampler": self.sampler,
             "backend": self.backend,
             "target_accept": self.target_accept,
+            "low_rank": self.low_rank,
             "progressbar": self.progressbar,
         }
 

@@ -105,6 +105,7 @@ def sample_model(
     backend: Backend,
     target_accept: float,
     progressbar: bool,
+    low_rank: bool = False,
     cores: int | None = None,
 ) -> tuple[az.InferenceData, dict[str, float]]:
     """Run NUTS on a built PyMC model; returns the inference data (warm-up dropped) and timings."""
@@ -127,6 +128,7 @@ def sample_model(
                 seed=seed,
                 progressbar=progressbar,
                 target_accept=target_accept,
+                low_rank=low_rank,
             )
         else:
             idata = pm.sample(
@@ -169,6 +171,7 @@ def _sample_nutpie(
     seed: int,
     progressbar: bool,
     target_accept: float,
+    low_rank: bool,
 ) -> az.InferenceData:
     try:
         import nutpie
@@ -185,5 +188,6 @@ def _sample_nutpie(
         seed=seed,
         progress_bar=progressbar,
         target_accept=target_accept,
+        low_rank_modified_mass_matrix=low_rank,
         save_warmup=True,  # warm-up stats give the leapfrog count; the groups are dropped after
     )
