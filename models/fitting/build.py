@@ -127,7 +127,11 @@ def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
                 innovation = pm.Normal("latent_innovation", 0.0, 1.0, dims="day")
                 latent = pm.Deterministic(
                     "latent",
-                    _ar1_from_innovations(innovation, rho, latent_sd, data.n_days),
+                    _level_free(
+                        _ar1_from_innovations(innovation, rho, latent_sd, data.n_days),
+                        data.n_days,
+                        trend=spec.trend,
+                    ),
                     dims="day",
                 )
             log_rate = log_rate + latent[feats.day]
@@ -241,6 +245,23 @@ def _columns_times(basis: np.ndarray, weights: pt.TensorVariable) -> pt.TensorVa
     return total
 
 
+def _level_free(path: pt.TensorVariable, n_days: int, *, trend: bool) -> pt.TensorVariable:
+    """The latent path less its mean over the history (and, with a trend, less its least-squares
+    line over the days), so the baseline is the history's level and the trend its slope.
+
+    Without this the path's level trades against the baseline (and its drift against the trend)
+    along a ridge the data cannot resolve, widest when ``latent_rho`` nears 1: on the battery the
+    divergent draws sat apart on the baseline and the early innovations (docs/fit-gate.md).
+    """
+    if n_days < 2:
+        return path
+    centred = path - path.mean()
+    if not trend or n_days < 3:
+        return centred
+    days = np.arange(n_days) - (n_days - 1) / 2.0
+    return centred - days * ((centred * days).sum() / float(np.sum(days**2)))
+
+
 #: Days per block of the AR(1) path: a dense product inside each block, a carry between blocks.
 _AR1_BLOCK = 32
 
@@ -349,7 +370,11 @@ def build_joint_model(data: JointData, spec: ModelSpec) -> pm.Model:
             latent_sd = pm.HalfNormal("latent_sd", sigma=priors.latent_scale, dims="series")
             innovation = pm.Normal("latent_innovation", 0.0, 1.0, dims=("series", "day"))
             paths = [
-                _ar1_from_innovations(innovation[s], rho[s], latent_sd[s], data.n_days)
+                _level_free(
+                    _ar1_from_innovations(innovation[s], rho[s], latent_sd[s], data.n_days),
+                    data.n_days,
+                    trend=spec.trend,
+                )
                 for s in range(n_series)
             ]
             latent = pm.Deterministic("latent", pt.stack(paths), dims=("series", "day"))
