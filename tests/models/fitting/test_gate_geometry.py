@@ -16,7 +16,12 @@ TZ = "UTC"
 
 
 def _history(
-    *, level: float, interaction_sd: float, k: float | None, weeks: int = 8, seed: int = 1
+    *,
+    level: float,
+    interaction_sd: float,
+    k: float | np.ndarray | None,
+    weeks: int = 8,
+    seed: int = 1,
 ):  # type: ignore[no-untyped-def]
     rng = np.random.default_rng(seed)
     first = dt.date(2026, 2, 2)
@@ -27,7 +32,8 @@ def _history(
     cell -= cell.mean(axis=0, keepdims=True) + cell.mean(axis=1, keepdims=True) - cell.mean()
     mean = level * np.exp(0.8 * np.sin(2 * np.pi * slot / 24) + cell[dow, slot])
     if k is not None:
-        mean = mean * rng.gamma(k, 1.0 / k, size=len(mean))
+        size = np.broadcast_to(np.asarray(k, dtype=float), (24,))[slot]
+        mean = mean * rng.gamma(size, 1.0 / size)
     counts = rng.poisson(mean)
     binned = BinnedSeries(grid, counts, np.ones(len(grid)), TZ, 60, first, end)
     spec = ModelSpec(observation="negbin", bin_minutes=60)
@@ -44,8 +50,12 @@ def test_busy_additive_poisson_counts_stay_non_centred() -> None:
     assert abs(geometry.excess) < 0.3
 
 
-def test_a_strong_interaction_in_overdispersed_counts_is_centred() -> None:
-    data, spec, truth = _history(level=100.0, interaction_sd=0.3, k=20.0)
+#: Dispersions that differ by slot as at a night-life street: noisy at night, steady by day.
+BY_SLOT = np.where((np.arange(24) < 6) | (np.arange(24) >= 22), 3.0, 60.0)
+
+
+def test_a_strong_interaction_and_slot_dispersions_are_centred() -> None:
+    data, spec, truth = _history(level=100.0, interaction_sd=0.3, k=BY_SLOT)
     geometry = choose_geometry(data, spec)
     assert geometry.centred_interaction and geometry.centred_dispersion
     # The moment estimate recovers the simulated interaction's spread within 20%.
@@ -59,6 +69,15 @@ def test_excess_scatter_is_mu_over_k_for_negative_binomial_counts() -> None:
     # k = 20, about 5 (the sine shape spreads mu, so the median cell sits near level).
     data, _, _ = _history(level=100.0, interaction_sd=0.0, k=20.0, weeks=26)
     assert 3.5 < excess_scatter(data, 24) < 6.5
+
+
+def test_one_dispersion_for_every_slot_stays_non_centred() -> None:
+    # Busy counts with a single k: the slot deviations are truly zero and a centred form would
+    # funnel as their spread shrinks (measured on the battery's busy series, docs/fit-gate.md).
+    data, spec, _ = _history(level=300.0, interaction_sd=0.0, k=50.0)
+    geometry = choose_geometry(data, spec)
+    assert not geometry.centred_dispersion
+    assert geometry.dispersion_spread < geometry.dispersion_se * 2
 
 
 def test_forcing_overrides_the_data() -> None:
