@@ -66,6 +66,7 @@ class Case:
     annual: int = 0
     opening: str | None = None
     quick: bool = False
+    latent: bool = True
 
     def spec(self) -> ModelSpec:
         """What ``ratecast fit`` builds by default for this series (``model_spec`` with the
@@ -73,7 +74,7 @@ class Case:
         return ModelSpec(
             bin_minutes=self.bin_minutes,
             trend=True,
-            latent_daily=True,
+            latent_daily=self.latent,
             holidays=self.holidays,
             observation="negbin",
             annual_harmonics=self.annual,
@@ -230,12 +231,15 @@ CASES: dict[str, Case] = {
         auckland("30 Queen Street", dt.date(2024, 6, 3), 26),
         holidays=NZ,
     ),
+    # Daily bins: --no-latent as in bench/evidence.py (a negative binomial day and a daily
+    # latent are both day-level noise and did not mix together, docs/calibration.md).
     "us-births-2y": Case(
-        "real: US births, daily, 2 years to 5 Jan 1987, --annual 4",
+        "real: US births, daily, 2 years to 5 Jan 1987, --annual 4 --no-latent",
         births(dt.date(1987, 1, 5), 2),
         bin_minutes=1440,
         holidays=US,
         annual=4,
+        latent=False,
     ),
 }
 
@@ -306,7 +310,9 @@ def truth_check(
 
 
 # ----------------------------------------------------------------------------- running
-def run_case(name: str, case: Case, options: FitOptions, label: str) -> dict[str, Any]:
+def run_case(
+    name: str, case: Case, options: FitOptions, label: str, *, retry: bool = True
+) -> dict[str, Any]:
     from models.fitting.build import build_model
     from models.fitting.sampling import fit_model
     from models.ratemodel.design import make_model_data
@@ -343,6 +349,22 @@ def run_case(name: str, case: Case, options: FitOptions, label: str) -> dict[str
         "scalar_shift": scalar_shift(fit.idata),
         "options": {k: v for k, v in options.sampling().items() if k != "progressbar"},
     }
+    if not d.ok and retry:
+        # What fit_and_publish does next: one retry with stronger settings.
+        from models.fitting.escalation import stronger_options
+
+        stronger, note = stronger_options(options, d)
+        again = fit_model(data, spec, options=stronger)
+        a = again.diagnostics
+        record["retry"] = {
+            "changed": note,
+            "ok": a.ok,
+            "problems": list(a.problems),
+            "divergences": a.divergences,
+            "min_ess": a.min_ess_bulk,
+            "max_r_hat": a.max_r_hat,
+            "sampling_s": again.timings["sampling_seconds"],
+        }
     if not d.ok:
         keep = fit.idata.copy()
         for group in [g for g in keep.groups() if g not in ("posterior", "sample_stats")]:
@@ -364,6 +386,7 @@ def main() -> None:
     parser.add_argument("--tune", type=int, default=None)
     parser.add_argument("--draws", type=int, default=None)
     parser.add_argument("--redo", action="store_true", help="refit series already recorded")
+    parser.add_argument("--no-retry", action="store_true", help="no stronger retry after a fail")
     parser.add_argument("--report", action="store_true", help="rewrite docs/fit-gate.md tables")
     args = parser.parse_args()
     if args.report:
@@ -395,24 +418,32 @@ def main() -> None:
             record = json.loads(path.read_text())
         else:
             print(f"{name}: fitting ...", file=sys.stderr, flush=True)
-            record = run_case(name, CASES[name], options, args.label)
+            record = run_case(name, CASES[name], options, args.label, retry=not args.no_retry)
             path.write_text(json.dumps(record, indent=1))
         print(row(record), flush=True)
 
 
 def row(r: dict[str, Any]) -> str:
     gate = "pass" if r["ok"] else "FAIL: " + "; ".join(r["problems"][:3])
+    retry = r.get("retry")
+    after = (
+        ""
+        if retry is None
+        else ("pass" if retry["ok"] else "FAIL: " + "; ".join(retry["problems"][:2]))
+    )
+    if retry is not None:
+        after += f" ({retry['changed']}; {retry['sampling_s']:.0f} s)"
     return (
         f"| {r['series']} | {r['bins']} | {r['per_cell']:.0f} | {gate} | {r['divergences']} | "
         f"{r['min_ess']:.0f} | {r['max_r_hat']:.3f} | {r['sampling_s']:.0f} | {r['grad_us']:.0f} | "
-        f"{r['sampling_s'] / max(r['floor_s'], 1e-9):.1f} | {r['s_per_ess']:.3f} |"
+        f"{r['sampling_s'] / max(r['floor_s'], 1e-9):.1f} | {r['s_per_ess']:.3f} | {after} |"
     )
 
 
 HEADER = (
     "| series | bins | arrivals per weekly cell | gate | divergences | min bulk ESS | max r_hat | "
-    "sampling s | gradient us | sampling / floor | s per effective draw |\n"
-    "|---|---|---|---|---|---|---|---|---|---|---|"
+    "sampling s | gradient us | sampling / floor | s per effective draw | after the retry |\n"
+    "|---|---|---|---|---|---|---|---|---|---|---|---|"
 )
 
 
@@ -440,10 +471,14 @@ def table(label: str) -> list[str]:
     paths = [RESULTS / label / f"{n}.json" for n in CASES]
     records = [json.loads(p.read_text()) for p in paths if p.exists()]
     passed = sum(r["ok"] for r in records)
+    after = sum(r["ok"] or bool(r.get("retry", {}).get("ok")) for r in records)
     rows = [HEADER, *(row(r) for r in records)]
     total = sum(r["sampling_s"] for r in records)
     rows.append("")
-    rows.append(f"Passed {passed} of {len(records)}; sampling {total:.0f} s in all.")
+    rows.append(
+        f"First attempt passed {passed} of {len(records)}; with the retry {after} of "
+        f"{len(records)}; first-attempt sampling {total:.0f} s in all."
+    )
     return rows
 
 
