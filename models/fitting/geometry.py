@@ -92,7 +92,7 @@ def interaction_signal(data: ModelData, slots: int) -> tuple[float, float]:
     if seen.sum() < 4:
         return 0.0, float("inf")
     log_rate = np.where(seen, np.log((total + 0.5) / np.where(seen, hours, 1.0)), np.nan)
-    grand = np.nanmean(log_rate)
+    grand = float(np.nanmean(log_rate))
     rows = np.nanmean(log_rate, axis=1, keepdims=True)
     cols = np.nanmean(log_rate, axis=0, keepdims=True)
     resid = (log_rate - np.nan_to_num(rows, nan=grand) - np.nan_to_num(cols, nan=grand) + grand)[

@@ -8,6 +8,7 @@ from typing import Any
 
 from models.exceptions import FitRejected
 from models.fitting.escalation import attempt_record, remedy, stronger_options
+from models.fitting.geometry import choose_geometry
 from models.fitting.sampling import FitOptions, FitResult, fit_model
 from models.ratemodel.binning import BinnedSeries, OpeningHours
 from models.ratemodel.design import make_model_data
@@ -89,7 +90,10 @@ def fit_and_publish(
             "arrivals": binned.total,
             **(source or {}),
         },
-        "fit": fit_section(used, fit.diagnostics, retry, attempts, fit.timings),
+        "fit": {
+            **fit_section(used, fit.diagnostics, retry, attempts, fit.timings),
+            "parameterisation": choose_geometry(data, spec).to_dict(),
+        },
         "diagnostics": fit.diagnostics.to_dict(),
     }
     version = store.publish(
