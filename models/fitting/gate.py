@@ -79,7 +79,8 @@ def check_diagnostics(
     Problems name the worst parameters and their values, e.g.
     ``"r_hat 1.043 > 1.01 for dow_effect[Sat]"``. ``unobserved`` (a ``(dow, slot)`` mask, see
     :func:`unobserved_cells`) leaves out the entries no data inform: slot effects of slots never
-    observed and interaction cells never observed. Their draws are the prior's (they forecast
+    observed, day-of-week effects of weekdays never observed and interaction cells never
+    observed. Their draws are the prior's (they forecast
     only hours the opening hours close, or hours never seen), and a slowly mixing prior is no
     reason to refuse a fit.
     """
@@ -104,6 +105,9 @@ def check_diagnostics(
             dims = checked[name].dims[2:]
             if dims == ("slot",) and name.startswith(("slot_effect", "overdispersion_slot")):
                 mask = xr.DataArray(unobserved.all(axis=0), dims=("slot",))
+            elif dims == ("dow",) and name.startswith("dow_effect"):
+                # A weekday closed all day (e.g. Sunday) is informed by the prior only.
+                mask = xr.DataArray(unobserved.all(axis=1), dims=("dow",))
             elif dims == ("dow", "slot"):
                 mask = xr.DataArray(unobserved, dims=("dow", "slot"))
             else:

@@ -156,3 +156,21 @@ def test_no_retry_when_retries_are_off() -> None:
             options=TOO_FEW.with_changes(retry=False),
         )
     assert "retry" not in str(caught.value).split("\n")[0]
+
+
+def test_a_weekday_closed_all_day_is_left_out_of_the_gate() -> None:
+    # Chains that disagree only on Sunday's effect, when Sunday is closed all day (no data):
+    # the gate must not refuse the fit for it, and must when Sunday was observed.
+    rng = np.random.default_rng(8)
+    draws = rng.normal(size=(2, 500, 7))
+    draws[1, :, 6] += 3.0
+    idata = az.from_dict(
+        posterior={"dow_effect": draws},
+        coords={"dow": ["Mon", "Tue", "Wed", "Thu", "Fri", "Sat", "Sun"]},
+        dims={"dow_effect": ["dow"]},
+    )
+    closed = np.zeros((7, 24), dtype=bool)
+    closed[6, :] = True
+    assert check_diagnostics(idata, unobserved=closed).ok
+    refused = check_diagnostics(idata, unobserved=np.zeros((7, 24), dtype=bool))
+    assert any("dow_effect[Sun]" in p for p in refused.problems)
