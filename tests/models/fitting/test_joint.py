@@ -46,7 +46,7 @@ def joint_fit():  # type: ignore[no-untyped-def]
     histories = {name: simulate(name, rng) for name in DEVIATION}
     spec = ModelSpec(trend=False, latent_daily=False)
     data = make_joint_data(histories, spec)
-    options = FitOptions(draws=300, tune=400, chains=2, seed=5, progressbar=False)
+    options = FitOptions(draws=300, tune=400, chains=2, seed=5, progressbar=False, retry=False)
     return fit_joint(data, spec, options=options), histories
 
 
@@ -124,7 +124,7 @@ def joint_negbin_fit():  # type: ignore[no-untyped-def]
     spec = ModelSpec(
         trend=False, latent_daily=False, observation="negbin", dispersion_by_slot=False
     )
-    options = FitOptions(draws=300, tune=400, chains=2, seed=6, progressbar=False)
+    options = FitOptions(draws=300, tune=400, chains=2, seed=6, progressbar=False, retry=False)
     return fit_joint(make_joint_data(histories, spec), spec, options=options)
 
 
