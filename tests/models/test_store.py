@@ -137,11 +137,11 @@ class TestSeal:
         store.publish("desk-a", posterior, manifest={})
         extra = _version_dir(tmp_path) / "notes.txt"
         extra.write_text("hello")
-        with pytest.raises(CorruptArtefact, match="notes.txt is not part of the sealed version"):
+        with pytest.raises(CorruptArtefact, match=r"notes\.txt is not part of the sealed version"):
             store.load("desk-a")
         extra.unlink()
         (_version_dir(tmp_path) / "draws.npz").unlink()
-        with pytest.raises(CorruptArtefact, match="draws.npz is listed in the seal but missing"):
+        with pytest.raises(CorruptArtefact, match=r"draws\.npz is listed in the seal but missing"):
             store.load("desk-a")
 
     def test_a_current_format_version_without_its_seal_is_refused(
