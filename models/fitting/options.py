@@ -46,6 +46,9 @@ class FitOptions:
         Draws kept in the compact posterior (thinned evenly across chains).
     keep_full_posterior
         Also store the full inference data beside the compact draws.
+    cores
+        Chains sampled in parallel processes (default ``min(chains, os.cpu_count())``; 1 runs
+        them one after another in this process, as plan workers do).
     """
 
     draws: int = 1000
@@ -59,6 +62,7 @@ class FitOptions:
     max_stored_draws: int = 2000
     thresholds: GateThresholds = field(default_factory=GateThresholds)
     keep_full_posterior: bool = True
+    cores: int | None = None
 
     def sampling(self) -> dict[str, Any]:
         """The options :func:`sample_model` takes, as keyword arguments."""
@@ -71,6 +75,7 @@ class FitOptions:
             "backend": self.backend,
             "target_accept": self.target_accept,
             "progressbar": self.progressbar,
+            "cores": self.cores,
         }
 
     def with_changes(self, **changes: Any) -> FitOptions:

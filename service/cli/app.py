@@ -13,13 +13,13 @@ from collections.abc import Sequence
 from pathlib import Path
 
 from models.exceptions import FitRejected, InputError, RatecastError, SeriesNotFound, StoreError
-from service.cli import backtest, capacity, fitting, forecasting, serve
+from service.cli import backtest, capacity, fitting, forecasting, plan, serve
 from service.queries.forecast import CAUTION
 
 __all__ = ["build_parser", "main"]
 
 _EXIT = ((InputError, 2), (SeriesNotFound, 3), (FitRejected, 4), (StoreError, 5))
-_GROUPS = (fitting, forecasting, serve, capacity, backtest)
+_GROUPS = (fitting, forecasting, plan, serve, capacity, backtest)
 
 
 def build_parser() -> argparse.ArgumentParser:
