@@ -19,7 +19,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from models.capacity import queueing, staffing
+from models.capacity import counts, queueing, staffing
 from models.capacity.staffing import (
     ServiceTarget,
     evaluate_staffing,
@@ -286,7 +286,7 @@ class TestStaffIntervals:
     def test_count_distribution_keeps_the_predictive_mean_and_variance(self) -> None:
         # The internal count pmf against models.prediction.mixture.summarise (exact moments of the mixture).
         lam = np.column_stack([lognormal_draws(100, 0.3), lognormal_draws(2.5, 0.6, seed=3)])
-        grid = staffing._count_grid(lam)
+        grid = counts.count_grid(lam)
         exact = summarise(lam, levels=())
         mean = (grid.counts * grid.pmf).sum(axis=1)
         var = (grid.counts**2 * grid.pmf).sum(axis=1) - mean**2
