@@ -235,7 +235,7 @@ def _check_agents(agents: npt.ArrayLike, size: int) -> IntArray:
     if bad.size:
         i = int(bad[0])
         raise StaffingError(
-            f"agents[{i}] = {values[i]!r}; allowed: whole numbers from 0 to {MAX_AGENTS}"
+            f"agents[{i}] = {float(values[i])!r}; allowed: whole numbers from 0 to {MAX_AGENTS}"
         )
     return values.astype(np.int64)
 
@@ -731,11 +731,14 @@ def staff_intervals(
         raise StaffingError(f"day has {len(labels)} labels; allowed: one per interval ({windows})")
 
     mean = arr.mean(axis=0)
+    # Refuse what is too large before any heavy work: the load at the mean, then the size of
+    # the count grid (which also bounds the work of the exact quantile).
+    _check_loads(mean, seconds, target)
+    grid = count_grid(arr)
     quantile = mixture_quantile(arr, p)
     floor = np.where(mean > 0, int(min_agents), 0)
     plug_agents = np.maximum(_required(mean, seconds, target), floor)
     assured_agents = np.maximum(_required(quantile.astype(np.float64), seconds, target), floor)
-    grid = count_grid(arr)
     return StaffingPlan(
         target=target,
         meet_probability=p,
