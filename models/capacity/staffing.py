@@ -148,6 +148,8 @@ class ServiceTarget:
 
     Examples
     --------
+    The values are stored as checked floats (no computed figure here):
+
     >>> ServiceTarget(handle_time=240, answer_within=20, share=0.8)
     ServiceTarget(handle_time=240.0, answer_within=20.0, share=0.8, patience=None)
     """
@@ -516,6 +518,11 @@ def evaluate_staffing(
 
     Examples
     --------
+    A rate known to be 360 calls per 30 minutes still gives a Poisson(360) count. With 55 agents
+    (AHT 240 s) the Erlang C level within 15 s is 0.8024 at 366 calls and 0.7943 at 367, so the
+    target is missed when 367 or more come: ``scipy.stats.poisson.sf(366, 360) = 0.36305``
+    (both recomputed with scipy.stats.poisson):
+
     >>> import numpy as np
     >>> goal = ServiceTarget(handle_time=240, answer_within=15, share=0.8)
     >>> check = evaluate_staffing(np.full((1, 1), 360.0), 55, interval_seconds=1800, target=goal)
@@ -704,7 +711,11 @@ def staff_intervals(
 
     Examples
     --------
-    Forecast draws of 300 to 420 calls in a 30-minute interval:
+    Forecast draws of 300 to 420 calls in a 30-minute interval. The plug-in staffing is the 54
+    agents of 360 calls (:func:`required_agents`); the exact 0.9-quantile of the count is 414
+    (the mean over draws of ``scipy.stats.poisson.cdf`` is 0.8988 at 413 and 0.9039 at 414), and
+    414 calls (55.2 erlangs) reach ``SL(20 s) = 0.8426`` with 62 agents but 0.7885 with 61
+    (Erlang C recomputed with scipy.stats.poisson):
 
     >>> import numpy as np
     >>> lam = np.linspace(300.0, 420.0, 41)[:, None]
