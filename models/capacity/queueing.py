@@ -92,7 +92,8 @@ Load = TypeVar("Load", float, FloatArray)
 #: the O(N) Erlang B recursion of a search to about a second.
 MAX_LOAD = 1_000_000.0
 #: Most agents a formula or a search here considers; a search that reaches it without meeting
-#: its target is refused (with loads <= MAX_LOAD every target in (0, 1) is met well before).
+#: its target is refused (with loads <= MAX_LOAD, a target that double precision tells apart
+#: from 0 and 1 is met well before: about MAX_LOAD + 40 sqrt(MAX_LOAD) at the most).
 MAX_AGENTS = 2_000_000
 #: Most queue states one Erlang A sum may use (about 8 MB per array of them).
 MAX_QUEUE_STATES = 1_000_000
