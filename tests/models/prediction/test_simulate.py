@@ -2,8 +2,8 @@
 
 References:
 - Counts in [a, b) of a time-inhomogeneous Poisson process are Poisson(integral of the rate)
-  (REFERENCE_VALUES.md, "Time-inhomogeneous Poisson process"); over posterior draws the count is
-  the mixture that models.prediction.windows.forecast summarises exactly.
+  (../shared/REFERENCE_VALUES.md, "Time-inhomogeneous Poisson process"); over posterior draws
+  the count is the mixture that models.prediction.windows.forecast summarises exactly.
 - Time-rescaling: given n arrivals, Lambda(t_i) / Lambda(end) are i.i.d. uniform; checked with
   scipy.stats.kstest against an integrated rate computed here from the weekly table through
   zoneinfo (independent of the project's bin grid).
