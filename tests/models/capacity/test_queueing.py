@@ -1,6 +1,6 @@
 """Tests for models.capacity.queueing against published tables and independent computations.
 
-Sources (see /work/shared/REFERENCE_VALUES.md, "Queueing"):
+Sources (see ../shared/REFERENCE_VALUES.md, "Queueing"):
 [T] read in the published text; [R] recomputed with scipy/mpmath as that file records.
 - Tijms, *A First Course in Stochastic Models*, Wiley 2003, sec. 5.3 (Table 5.3.2 p.201, p.200).
 - Halfin & Whitt, Operations Research 29(3) 1981; Borst, Mandelbaum & Reiman, "Dimensioning

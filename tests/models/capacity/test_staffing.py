@@ -1,6 +1,6 @@
 """Staffing under forecast uncertainty: published queue values, the meaning of p, bad inputs.
 
-Sources (see /work/shared/REFERENCE_VALUES.md, "Queueing"):
+Sources (see ../shared/REFERENCE_VALUES.md, "Queueing"):
 - Tijms, *A First Course in Stochastic Models*, Wiley 2003, sec. 5.3: Table 5.3.2 p.201 [T][R]
   and p.200 [T]. With answer time 0 the service level is 1 - P(wait > 0), so "service level
   >= 1 - alpha at T = 0" is Tijms' "P(wait > 0) <= alpha".
