@@ -336,6 +336,7 @@ async function staff() {
     status.textContent = "";
     problem(err.message);
   }
+  performance.mark(`ratecast:staffed:${page.renders}`);
   document.body.dataset.staffed = String(page.renders);
 }
 
