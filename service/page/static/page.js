@@ -190,8 +190,8 @@ async function loadCatalogue() {
   return true;
 }
 
-/** The forecast document for the settings: bands for steps within a day, day windows otherwise. */
-async function fetchForecast(state, entry) {
+/** The calls for the settings: bands for steps within a day, whole local days otherwise. */
+function forecastCalls(state, entry) {
   if (state.step !== "1d") {
     const q = new URLSearchParams({ start: state.from, end: state.end, step: state.step, tz: entry.tz, quantiles: "0.5", at_least: String(state.k) });
     for (const level of state.levels) q.append("levels", level);
@@ -273,7 +273,7 @@ async function show() {
   writeLink(state);
   page.state = state;
   say(`Loading ${state.series}\u2026`);
-  const spec = await fetchForecast(state, entry);
+  const spec = forecastCalls(state, entry);
   let doc;
   try {
     doc = await (await request(spec, "application/json")).json();
@@ -404,11 +404,11 @@ async function start() {
   $("export-csv").addEventListener("click", exportCsv);
   $("export-svg").addEventListener("click", exportSvg);
   $("export-png").addEventListener("click", exportPng);
-  let width = 0;
   new ResizeObserver(() => {
-    const now = $("chart").clientWidth;
-    if (page.doc && Math.abs(now - width) > 4) {
-      width = now;
+    // Redraw only when the width changed (drawing the chart changes the box's height too).
+    const now = Math.floor($("chart").clientWidth);
+    const drawnWidth = Number(page.chart.svg?.getAttribute("width") ?? now);
+    if (page.doc && Math.abs(Math.max(320, now) - drawnWidth) > 4) {
       page.chart.render(page.doc, page.ctx);
       if (page.staffing) renderStaffing({ caution: $("staffing-caution"), definitions: $("staffing-definitions"), chart: $("staffing-chart"), days: $("staffing-days"), table: $("staffing-table") }, page.staffing);
     }
