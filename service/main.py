@@ -23,6 +23,7 @@ from service.api.routes import ROUTERS
 from service.api.routes.capacity import router as capacity_router
 from service.api.telemetry import Metrics, MetricsMiddleware
 from service.config import Settings, get_settings
+from service.page import router as page_router
 from service.queries.forecast import CAUTION
 
 __all__ = ["app", "create_app"]
@@ -80,6 +81,7 @@ def create_app(settings: Settings | None = None, *, store: PosteriorStore | None
     for router in ROUTERS:
         app.include_router(router)
     app.include_router(capacity_router)
+    app.include_router(page_router)
     # Added inside out: metrics sees every response, including the body limit's 413.
     app.add_middleware(BodyLimitMiddleware, max_bytes=settings.max_body_bytes)
     if settings.cors_origins:
