@@ -180,7 +180,9 @@ class TestOpeningHours:
         assert open_days == [0, 2, 4, 5, 6]
         assert hours.spans[2] == ((540, 600), (780, 1440))
 
-    @pytest.mark.parametrize("text", ["Funday 09:00-10:00", "Mon 10:00-10:00", "Mon 25:00-26:00", "Mon 9-10", ""])
+    @pytest.mark.parametrize(
+        "text", ["Funday 09:00-10:00", "Mon 10:00-10:00", "Mon 25:00-26:00", "Mon 9-10", ""]
+    )
     def test_bad_rules_are_refused_with_the_text(self, text: str) -> None:
         with pytest.raises(InputError):
             OpeningHours.parse(text)
