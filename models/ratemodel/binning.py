@@ -873,6 +873,13 @@ def _read_csv(path: Path, name: str) -> pd.DataFrame:
             f"file {name} is not well-formed CSV ({detail}); every line needs as many "
             "comma-separated fields as the header"
         ) from exc
+    if not isinstance(frame.index, pd.RangeIndex):
+        # pandas takes the first field as an index when the rows are longer than the header
+        raise InputError(
+            f"file {name} is not well-formed CSV: the data rows have more fields than the header "
+            f"({', '.join(map(str, frame.columns))}); every line needs as many comma-separated "
+            "fields as the header"
+        )
     if len(frame.columns) == 1:
         header = str(frame.columns[0])
         for mark, called in _DELIMITERS.items():
