@@ -85,7 +85,8 @@ class SimulatedArrivals:
             {
                 "replicate": self.replicate,
                 "draw": self.draw,
-                "timestamp": self.times.tz_convert(self.tz).floor("us"),
+                "timestamp": self.times.floor("us").tz_convert(self.tz),  # floor in UTC: local
+                # floors are ambiguous in the hour daylight saving repeats
             }
         )
 
@@ -201,9 +202,20 @@ def simulate_arrivals(
 
 
 def _iso_with_offset(stamps: pd.DatetimeIndex) -> pd.Index:
-    """ISO 8601 with microseconds and a ``+hh:mm`` offset, e.g. 2026-03-03T09:00:01.250000-06:00."""
-    text = pd.Index(stamps.strftime("%Y-%m-%dT%H:%M:%S.%f%z"))
-    return text.str[:-2] + ":" + text.str[-2:]
+    """ISO 8601 with microseconds and a ``+hh:mm`` offset, e.g. 2026-03-03T09:00:01.250000-06:00.
+
+    Formatted with numpy (a zone has few distinct offsets): per-row ``strftime`` took 6 s for
+    the 350,000 arrivals of 100 replicates of a week.
+    """
+    wall = stamps.tz_localize(None).as_unit("us").to_numpy()
+    utc = stamps.tz_convert("UTC").tz_localize(None).as_unit("us").to_numpy()
+    minutes = ((wall - utc) // np.timedelta64(1, "m")).astype(np.int64)
+    kinds, which = np.unique(minutes, return_inverse=True)
+    labels = np.array(
+        [f"{'+' if m >= 0 else '-'}{abs(m) // 60:02d}:{abs(m) % 60:02d}" for m in kinds.tolist()]
+    )
+    text = np.char.add(np.datetime_as_string(wall, unit="us"), labels[which])
+    return pd.Index(text.astype(object))
 
 
 def write_arrivals(arrivals: SimulatedArrivals, path: str | os.PathLike[str]) -> Path:

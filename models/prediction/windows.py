@@ -146,8 +146,19 @@ def _short(value: object) -> str:
     return text if len(text) <= 60 else f"{text[:40]}...{text[-10:]} ({len(text)} characters)"
 
 
+_DAYS_STEP = re.compile(r"^\s*[0-9]+\s*d\s*$")
+
+
 def parse_step(text: str) -> pd.Timedelta:
-    """Parse a window step such as ``15min``, ``30min``, ``1h`` or ``1d`` (whole minutes)."""
+    """Parse a window step such as ``15min``, ``30min``, ``1h`` or ``1d`` (whole minutes).
+
+    Examples
+    --------
+    >>> parse_step("1d") == pd.Timedelta(days=1)
+    True
+    """
+    if isinstance(text, str) and _DAYS_STEP.match(text):
+        text = text.strip()[:-1] + "D"  # pandas deprecates the lowercase day unit
     try:
         step = pd.Timedelta(text)
     except (ValueError, TypeError) as exc:

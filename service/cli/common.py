@@ -324,7 +324,7 @@ class DefaultsHelpFormatter(argparse.HelpFormatter):
 #: model runs on numba, which needs none) and ArviZ's NaN note (the diagnostics gate leaves out
 #: the cells no bin observes, such as closed hours, whose statistics are undefined).
 _QUIET_WARNINGS = (
-    (r".*ArviZ is undergoing a major refactor", FutureWarning),
+    (r"\s*ArviZ is undergoing a major refactor", FutureWarning),
     (r"PyTensor could not link to a BLAS installation", UserWarning),
 )
 _QUIET_LOGS = {"pytensor.tensor.blas": logging.ERROR}

@@ -158,6 +158,27 @@ class TestClosedTime:
         mu = weekly_table[0, 6] * 0.5
         assert abs(arrivals.counts().mean() - mu) < 4 * np.sqrt(mu / 4000)
 
+    def test_an_overnight_desk_across_the_end_of_dst_is_simulated_and_written(self, tmp_path):
+        # Saturday 31 October to Sunday 1 November 2026 in Chicago: the night 18:00-08:00 lasts
+        # 15 hours and 01:00-02:00 happens twice (common practice, no source). The repeated hour
+        # used to break the output (a local floor there is ambiguous).
+        posterior = synthetic_posterior(
+            np.full((7, 24), 4.0),
+            opening=OpeningHours.parse("daily 18:00-08:00"),
+            first_day=dt.date(2026, 10, 1),
+            n_days=28,
+        )
+        start, end = local("2026-10-31T12:00"), local("2026-11-01T12:00")
+        arrivals = simulate_arrivals(posterior, start, end, replicates=400, seed=4)
+        mu = 4.0 * 15  # Poisson(rate x open hours): mean within 4 standard errors
+        assert abs(arrivals.counts().mean() - mu) < 4 * np.sqrt(mu / 400)
+        frame = pd.read_csv(write_arrivals(arrivals, tmp_path / "night.csv"))
+        repeated = frame["timestamp"][frame["timestamp"].str.startswith("2026-11-01T01:")]
+        assert {text[-6:] for text in repeated} == {"-05:00", "-06:00"}
+        clock = pd.DatetimeIndex(arrivals.times).tz_convert(TZ)
+        minute = np.asarray(clock.hour * 60 + clock.minute)
+        assert np.all((minute >= 18 * 60) | (minute < 8 * 60))
+
 
 class TestFiles:
     def test_csv_has_iso_times_with_offsets(self, weekly_table, tmp_path):
