@@ -224,8 +224,8 @@ def _joined(spans: list[tuple[int, int]]) -> tuple[tuple[int, int], ...]:
 
 
 def _parse_days(text: str) -> list[int]:
-    text = text.strip().lower()
-    if text in {"daily", "every day", "all"}:
+    text = text.strip()
+    if text.lower() in {"daily", "every day", "all"}:
         return list(range(7))
     days: list[int] = []
     for part in text.replace(" ", "").split(","):

@@ -12,6 +12,7 @@ import os
 import sys
 from collections.abc import Sequence
 from pathlib import Path
+from typing import NoReturn
 
 from models.exceptions import FitRejected, InputError, RatecastError, SeriesNotFound, StoreError
 from service.cli import backtest, capacity, fitting, forecasting, serve
@@ -34,9 +35,16 @@ def package_version() -> str:
         return "unknown"
 
 
+class _Parser(argparse.ArgumentParser):
+    """argparse, with usage mistakes reported on one line that points to ``--help``."""
+
+    def error(self, message: str) -> NoReturn:
+        self.exit(2, f"{self.prog}: error: {message} (see {self.prog} --help)\n")
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser with every subcommand; every ``--help`` states the defaults."""
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="ratecast",
         description="Learn arrival rates from history and forecast counts for any window.",
         epilog=CAUTION,

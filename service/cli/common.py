@@ -190,11 +190,13 @@ def read_history(
     from models.ratemodel.binning import (
         bin_counts,
         bin_events,
+        check_zone,
         parse_bin_width,
         parse_timestamps,
         read_table,
     )
 
+    check_zone(args.tz)  # before the file: a bad zone is not the file's fault
     bin_minutes = parse_bin_width(args.bin) if args.bin else None
     path = args.events or args.counts
     if args.counts and until is not None:

@@ -155,8 +155,15 @@ def _add_fit_group(sub: Any) -> None:
 
 def _run_fit_group(args: argparse.Namespace) -> int:
     from models.fitting.joint import fit_joint, make_joint_data, publish_joint
-    from models.ratemodel.binning import OpeningHours, bin_counts, parse_bin_width, read_table
+    from models.ratemodel.binning import (
+        OpeningHours,
+        bin_counts,
+        check_zone,
+        parse_bin_width,
+        read_table,
+    )
 
+    check_zone(args.tz)
     opening = OpeningHours.parse(args.opening) if args.opening else None
     bin_minutes = parse_bin_width(args.bin) if args.bin else None
     histories = {}
