@@ -1,8 +1,10 @@
 """Predictive count distributions for arbitrary windows, from a compact posterior.
 
 For each posterior draw d the expected count in a window [a, b) is Λ_d = ∫_a^b λ_d(t) dt, with
-λ_d piecewise constant on the model's bins (a bin partly inside the window counts pro rata, closed
-hours count zero, daylight-saving days have 23 or 25 hours). Days after the history get latent
+λ_d piecewise constant on the model's bins and zero in closed time: a bin the opening hours cut
+carries its rate on its open minutes only, so a bin partly inside the window counts for the open
+minutes it shares with the window, a window wholly in closed time has Λ_d = 0 exactly, and
+daylight-saving days have 23 or 25 hours. Days after the history get latent
 deviations simulated forward from each draw's AR(1) with a fixed seed (and, with the within-day
 term, shape weights drawn per day from a generator seeded by the day), so a query always gives the
 same answer from the same version. The annual season, if any, is a smooth function of the date.
