@@ -10,7 +10,6 @@ parallelism is one fit per worker.
 
 from __future__ import annotations
 
-import argparse
 import hashlib
 import json
 import logging
@@ -110,23 +109,23 @@ def _current_versions(store: Any, entry: PlanEntry, key: str) -> dict[str, str] 
 
 def _history(entry: PlanEntry, member: Member, opening: Any) -> Any:
     from models.prediction.windows import parse_instant
-    from service.cli.common import read_history
+    from service.history import read_history_file
 
     until = parse_instant(entry.until, tz=entry.zone).to_pydatetime() if entry.until else None
-    # read_history takes the fit command's arguments; these are the same fields.
-    args = argparse.Namespace(
-        events=member.path if member.kind == "events" else None,
-        counts=member.path if member.kind == "counts" else None,
+    return read_history_file(
+        member.path,
+        kind=member.kind,
         tz=entry.zone,
         bin=entry.bin,
         time_column=member.time_column,
+        opening=opening,
+        until=until,
     )
-    return read_history(args, opening=opening, until=until)
 
 
 def _spec(entry: PlanEntry, bin_minutes: int) -> Any:
     from models.ratemodel.spec import ModelSpec
-    from service.cli.common import holiday_calendar
+    from service.history import holiday_calendar
 
     model = entry.model
     return ModelSpec(

@@ -285,7 +285,7 @@ class TestErrors:
             ]
         )
         assert code == 2
-        assert "row 1: '2.5' is not a whole number" in capsys.readouterr().err
+        assert "line 3: '2.5' is not a whole number" in capsys.readouterr().err
 
     @pytest.mark.parametrize(
         ("option", "value"),
