@@ -327,17 +327,25 @@ def _integrate_cluster(
         running = np.empty((b1 - b0 + 1, posterior.n_draws))
         running[0] = offset
         per_bin = np.multiply(rate, (open_share[block] * bin_hours)[:, None], out=running[1:])
-        partial = rate[local] * (open_before[here] * bin_hours)[:, None]
         if spec.observation == "negbin":
-            noise = _cached_noise(posterior, edges[block] // bin_ns, slot[block])
-            per_bin *= noise
-            partial *= noise[local]
+            per_bin *= _cached_noise(posterior, edges[block] // bin_ns, slot[block])
         np.cumsum(running, axis=0, out=running)
-        cumulative[here] = running[local] + partial
+        # An endpoint lies a share f of the way through its bin's open part: its integral is
+        # running[l] (1 - f) + running[l + 1] f. Two gathers per endpoint instead of four, and
+        # f is exactly 0 or 1 in closed time, so closed time adds exactly nothing.
+        shares = open_share[block][local]
+        f = np.divide(open_before[here], shares, out=np.zeros(len(here)), where=shares > 0)
+        after = running[local + 1]
+        after *= f[:, None]
+        before = running[local]
+        before *= (1.0 - f)[:, None]
+        before += after
+        cumulative[here] = before
         offset = running[-1].copy()
     n = len(members)
+    window = np.subtract(cumulative[n:], cumulative[:n], out=cumulative[n:])
     # Rounding could leave a window of closed bins a hair below zero; counts are never negative.
-    out[members] = np.maximum(cumulative[n:] - cumulative[:n], 0.0)
+    out[members] = np.maximum(window, 0.0, out=window)
 
 
 def _cached_noise(
