@@ -9,10 +9,13 @@ from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import pytest
 from fastapi.testclient import TestClient
+from scipy import stats
 
 from models.store import FileStore
+from service.api.work import INLINE_CELLS
 from service.main import create_app
 from tests.service.api.support import ADMIN, READER, TZ, hump_table, publish, settings
 
@@ -117,6 +120,8 @@ class TestSeriesCatalogue:
 
 class TestForecast:
     def test_answers_each_window_and_their_total(self, client: TestClient) -> None:
+        """Every draw of desk-a has the same hourly rates: each window, and the total of the
+        two, is Poisson with the rate integrated over it (reference: scipy.stats.poisson)."""
         body = forecast(
             client,
             {
@@ -132,14 +137,21 @@ class TestForecast:
             "2026-03-03T09:00:00-06:00",
             "2026-03-03T10:00:00-06:00",
         ]
-        for window in body["windows"]:
-            q = window["quantiles"]
-            assert q["0.1"] <= q["0.5"] <= q["0.9"]
-            assert window["at_least"]["0"] == pytest.approx(1.0)
-            lo, hi = window["intervals"]["0.95"]
-            assert lo <= q["0.5"] <= hi
-        # Expectation is linear: the total's mean is the sum of the windows' means.
-        assert body["total"]["mean"] == pytest.approx(sum(w["mean"] for w in body["windows"]))
+        tuesday = hump_table()[1]  # 2026-03-03 is a Tuesday; rows run Monday..Sunday
+        means = [tuesday[9], tuesday[10] + 0.5 * tuesday[11]]  # 09-10; 10-11 and half of 11-12
+        for row, mu in [*zip(body["windows"], means, strict=True), (body["total"], sum(means))]:
+            poisson = stats.poisson(mu)
+            # float32 storage of the log rates: about 1e-7 relative.
+            assert row["mean"] == pytest.approx(mu, rel=1e-6)
+            assert row["sd"] == pytest.approx(np.sqrt(mu), rel=1e-6)
+            assert row["p_zero"] == pytest.approx(poisson.pmf(0), rel=1e-5)
+            assert row["quantiles"] == {f"{q:g}": int(poisson.ppf(q)) for q in (0.1, 0.5, 0.9)}
+            assert row["intervals"] == {
+                f"{level:g}": [int(poisson.ppf((1 - level) / 2)), int(poisson.ppf((1 + level) / 2))]
+                for level in (0.8, 0.95)
+            }
+            assert row["at_least"]["0"] == 1.0
+            assert row["at_least"]["5"] == pytest.approx(poisson.sf(4), rel=1e-5)
         assert "probabilistic" in body["caution"]
 
     def test_offset_and_local_time_with_zone_agree(self, client: TestClient) -> None:
@@ -227,13 +239,15 @@ class TestForecast:
         )
         assert body["value"] == "next tuesday"
 
-    def test_malformed_json_is_422(self, client: TestClient) -> None:
+    def test_malformed_json_is_a_body_error_not_a_field(self, client: TestClient) -> None:
         response = client.post(
             "/v1/series/desk-a/forecast",
             content=b'{"windows": [',
             headers={"Content-Type": "application/json"},
         )
-        assert response.status_code == 422
+        body = assert_error(response, 422, field="body", code="invalid_body")
+        assert body["problems"][0]["field"] == "body"
+        assert "not valid JSON" in body["message"] and "character 13" in body["message"]
 
     def test_unknown_series_is_404(self, client: TestClient) -> None:
         assert_error(
@@ -514,10 +528,12 @@ class TestAtomicReload:
         import httpx
 
         store = FileStore(tmp_path)
-        publish(store, "desk-a", hump_table(1.0), draws=10)
+        # 60 windows of 20 minutes touch 2 hourly bins each: with this many draws the estimate
+        # is above INLINE_CELLS, so the answer is computed in a work thread while reloads run
+        # in another.
+        draws = INLINE_CELLS // (60 * 2) + 1
+        publish(store, "desk-a", hump_table(1.0), draws=draws)
         app = create_app(settings(tmp_path, admin_token=ADMIN))
-        # 60 windows: more than HEAVY_WINDOWS, so the answer is computed in a worker thread
-        # while reloads run in another.
         windows = (
             [
                 {"start": f"2026-03-03T{h:02d}:00", "end": f"2026-03-03T{h:02d}:20"}
@@ -557,7 +573,7 @@ class TestAtomicReload:
                 async def republish() -> None:
                     for scale in (2.0, 1.0, 2.0, 1.0):
                         await asyncio.to_thread(
-                            publish, store, "desk-a", hump_table(scale), draws=10
+                            publish, store, "desk-a", hump_table(scale), draws=draws
                         )
                         await http.post(
                             "/v1/admin/reload", headers={"Authorization": f"Bearer {ADMIN}"}

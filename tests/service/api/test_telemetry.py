@@ -116,10 +116,12 @@ def test_served_and_refused_versions_are_exposed(client: TestClient, store_path:
 
 def test_label_values_are_escaped() -> None:
     from service.api.telemetry import render
+    from service.api.work import WorkPool
 
     metrics = Metrics()
     metrics.observe("GET", 'odd"route\\with\nbreak', 200, 0.01)
-    text = render(metrics, Registry(FileStore("/nonexistent-store-for-test")))
+    pool = WorkPool(threads=1, queue=0, budget=1, deadline_seconds=1.0)
+    text = render(metrics, Registry(FileStore("/nonexistent-store-for-test")), pool)
     samples = parse(text)
     routes = {lab["route"] for _, lab, _ in samples if "route" in lab}
     assert routes == {'odd\\"route\\\\with\\nbreak'}
