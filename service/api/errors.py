@@ -44,6 +44,8 @@ from models.exceptions import (
     StoreError,
 )
 from service.api.redact import public_text
+from service.api.schemas.common import INSTANT_ALLOWED, INSTANT_PATTERN, STEP_PATTERN
+from service.queries.windows import STEP_ALLOWED
 
 __all__ = [
     "ApiError",
@@ -59,6 +61,8 @@ logger = logging.getLogger("ratecast.api")
 _MAX_ECHO = 200  # characters of a bad value echoed back; long bodies are cut, never reflected whole
 _MAX_ITEMS = 10
 _MAX_DEPTH = 3
+#: What a pattern of the schema means, for people (instead of the regular expression).
+_PATTERN_ALLOWED = {INSTANT_PATTERN: INSTANT_ALLOWED, STEP_PATTERN: STEP_ALLOWED}
 
 
 class ApiError(Exception):
@@ -205,6 +209,10 @@ def problems_from_validation(
             reason = (err.get("ctx") or {}).get("error", "cannot be decoded")
             where, value, allowed = "body", None, "a JSON document"
             message = f"the request body is not valid JSON: {reason}{at}"
+        elif kind == "string_pattern_mismatch":
+            value = err.get("input")
+            allowed = _PATTERN_ALLOWED.get(str((err.get("ctx") or {}).get("pattern")), allowed)
+            message = f"{_echo(value)!r} does not have the allowed form: {allowed}"
         elif kind == "missing":
             value, allowed = None, "a value (the field is required)"
         elif kind == "extra_forbidden":

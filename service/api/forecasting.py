@@ -129,7 +129,7 @@ class Windows:
         if self.span is not None:
             span = self.span
             return range_cells(
-                span.start, span.end, span.count(), bin_minutes=bin_minutes, draws=draws
+                span.start, span.end, span.step, bin_minutes=bin_minutes, draws=draws
             )
         assert self.starts is not None and self.ends is not None
         return window_cells(self.starts, self.ends, bin_minutes=bin_minutes, draws=draws)

@@ -78,13 +78,24 @@ def window_cells(
 
 
 def range_cells(
-    start: pd.Timestamp, end: pd.Timestamp, count: int, *, bin_minutes: int, draws: int
+    start: pd.Timestamp,
+    end: pd.Timestamp,
+    step: pd.Timedelta | None,
+    *,
+    bin_minutes: int,
+    draws: int,
 ) -> int:
-    """Estimated bin-draws of a range cut into ``count`` windows (an upper bound, exact enough)."""
-    if count <= 0:
+    """:func:`window_cells` of ``[start, end)`` cut by ``step``, without cutting it."""
+    if end <= start:
         return 0
-    bins = math.ceil((end - start) / pd.Timedelta(minutes=bin_minutes))
-    return (bins + 2 * count) * draws
+    width = pd.Timedelta(minutes=bin_minutes)
+    span = end - start
+    if step is None or step >= span:
+        return (math.ceil(span / width) + 1) * draws
+    full = math.ceil(span / step) - 1
+    last = span - full * step
+    bins = full * (math.ceil(step / width) + 1) + math.ceil(last / width) + 1
+    return bins * draws
 
 
 class WorkPool:

@@ -3,9 +3,9 @@
 :func:`parse_range` reads the two times and the step, each failure naming its field
 (``start``, ``end``, ``step``) on the raised :class:`~models.exceptions.InputError`;
 :meth:`Range.windows` cuts it, after counting the windows, so a tiny step over a long range is
-refused before millions of windows exist. All instants are UTC in nanoseconds: the library
-compares nanosecond instants, and answers are given in the series' zone whatever zone the times
-came in.
+refused before millions of windows exist. Instants are nanoseconds in the caller's zone (UTC if
+none): the library compares nanosecond instants, and answers are given in the series' zone
+whatever zone the times came in.
 """
 
 from __future__ import annotations
@@ -27,7 +27,11 @@ STEP_ALLOWED = "a whole number of minutes, hours or days, e.g. 15min, 1h, 1d"
 
 
 def parse_time(text: str | dt.datetime, *, tz: str | None, field: str) -> pd.Timestamp:
-    """An instant as UTC nanoseconds; a time without an offset is local to ``tz``.
+    """An instant in nanoseconds, in the zone ``tz`` (UTC if none); a time without an offset
+    is local to ``tz``.
+
+    One zone for every time of a request, so that they make one index, and messages about
+    them read in the zone the caller gave.
 
     Raises
     ------
@@ -40,7 +44,7 @@ def parse_time(text: str | dt.datetime, *, tz: str | None, field: str) -> pd.Tim
         exc.locate(field, text)
         raise
     try:
-        return stamp.tz_convert("UTC").as_unit("ns")
+        return stamp.tz_convert(tz or "UTC").as_unit("ns")
     except (ValueError, OverflowError) as exc:
         raise WindowError(
             f"time {text!r} is outside the range that can be represented",
@@ -52,7 +56,7 @@ def parse_time(text: str | dt.datetime, *, tz: str | None, field: str) -> pd.Tim
 
 @dataclass(frozen=True)
 class Range:
-    """A range ``[start, end)`` (UTC) and the step that cuts it (``None``: one window)."""
+    """A range ``[start, end)`` and the step that cuts it (``None``: one window)."""
 
     start: pd.Timestamp
     end: pd.Timestamp
@@ -119,7 +123,8 @@ def parse_range(
         width = step
     elif step is not None:
         try:
-            width = parse_step(step)
+            # pandas 3 deprecates the unit "d" (it warns); "D" is the same day of 24 hours.
+            width = parse_step(step[:-1] + "D" if step.endswith("d") else step)
         except InputError as exc:
             exc.locate("step", step, allowed=STEP_ALLOWED)
             raise

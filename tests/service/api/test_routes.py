@@ -10,6 +10,7 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
+import pandas as pd
 import pytest
 from fastapi.testclient import TestClient
 from scipy import stats
@@ -153,6 +154,20 @@ class TestForecast:
             assert row["at_least"]["0"] == 1.0
             assert row["at_least"]["5"] == pytest.approx(poisson.sf(4), rel=1e-5)
         assert "probabilistic" in body["caution"]
+
+    def test_csv_when_asked_with_the_total_as_the_last_row(self, client: TestClient) -> None:
+        body = {"windows": [ONE_HOUR, {"start": "2026-03-03T10:00", "end": "2026-03-03T11:00"}],
+                "tz": TZ, "total": True}  # fmt: skip
+        as_json = forecast(client, body).json()
+        response = client.post(
+            "/v1/series/desk-a/forecast", json=body, headers={"Accept": "text/csv"}
+        )
+        assert response.headers["content-type"].startswith("text/csv")
+        assert "probabilistic" in response.headers["x-caution"]
+        rows = list(csv.DictReader(io.StringIO(response.text)))
+        assert [r["row"] for r in rows] == ["window", "window", "total"]
+        means = [w["mean"] for w in as_json["windows"]] + [as_json["total"]["mean"]]
+        assert [float(r["mean"]) for r in rows] == [round(m, 3) for m in means]
 
     def test_offset_and_local_time_with_zone_agree(self, client: TestClient) -> None:
         local = forecast(client, {"windows": [ONE_HOUR], "tz": TZ}).json()
@@ -320,6 +335,25 @@ class TestBands:
             assert int(row["lo_0.95"]) == window["intervals"]["0.95"][0]
             assert float(row["p_at_least_3"]) == round(window["at_least"]["3"], 4)
 
+    def test_total_over_the_range_and_its_csv_row(self, client: TestClient) -> None:
+        params = self.query(step="6h", total="true")
+        as_json = client.get("/v1/series/desk-a/bands", params=params).json()
+        # Expectation is linear: the total's mean is the sum of the windows' means.
+        assert as_json["total"]["mean"] == pytest.approx(
+            sum(w["mean"] for w in as_json["windows"]), rel=1e-9
+        )
+        response = client.get(
+            "/v1/series/desk-a/bands", params=params, headers={"Accept": "text/csv"}
+        )
+        rows = list(csv.DictReader(io.StringIO(response.text)))
+        assert [r["row"] for r in rows] == ["window"] * 4 + ["total"]
+        assert float(rows[-1]["mean"]) == round(as_json["total"]["mean"], 3)
+        assert (rows[-1]["start"], rows[-1]["end"]) == (rows[0]["start"], rows[-2]["end"])
+
+    def test_without_total_the_json_has_no_total_key(self, client: TestClient) -> None:
+        body = client.get("/v1/series/desk-a/bands", params=self.query(step="6h")).json()
+        assert "total" not in body and "at_least" not in body["windows"][0]
+
     def test_accept_q_values_are_honoured(self, client: TestClient) -> None:
         response = client.get(
             "/v1/series/desk-a/bands",
@@ -365,6 +399,32 @@ class TestBands:
             client.get("/v1/series/desk-a/bands", params=params), 422, field="start"
         )
         assert "required" in body["allowed"]
+
+
+class TestLongRanges:
+    def test_400_days_at_one_day(self, tmp_path: Path) -> None:
+        """400 windows of 24 hours. Each mean is the hourly rates summed over the hours the
+        window covers (a hand integral). A step is a fixed length: after Chicago's clocks move
+        forward on 2026-03-08 (common practice, no source) the windows start at 01:00."""
+        publish(FileStore(tmp_path), "desk-a", hump_table(), draws=20)
+        params = {"start": "2026-03-02", "end": "2027-04-06", "step": "1d", "tz": TZ}
+        with TestClient(create_app(settings(tmp_path))) as long_client:
+            body = long_client.get("/v1/series/desk-a/bands", params=params).json()
+        windows = body["windows"]
+        assert len(windows) == 400
+        rates = hump_table()  # rows Monday..Sunday, columns local hours
+        for window in windows[:6]:  # Monday 2026-03-02 to Saturday 2026-03-07
+            weekday = pd.Timestamp(window["start"]).weekday()
+            assert window["mean"] == pytest.approx(rates[weekday].sum(), rel=1e-6)
+        spring = windows[6]
+        assert (spring["start"], spring["end"]) == (
+            "2026-03-08T00:00:00-06:00",
+            "2026-03-09T01:00:00-05:00",
+        )
+        # Sunday without its 02:00 hour (it does not exist), then Monday 00:00-01:00.
+        expected = rates[6].sum() - rates[6][2] + rates[0][0]
+        assert spring["mean"] == pytest.approx(expected, rel=1e-6)
+        assert windows[7]["start"] == "2026-03-09T01:00:00-05:00"
 
 
 class TestBatch:
