@@ -33,7 +33,7 @@ import datetime as dt
 import re
 from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import NotRequired, TypedDict
 
 import numpy as np
 import pandas as pd
@@ -52,6 +52,7 @@ __all__ = [
     "INSTANT_FORM",
     "MAX_HORIZON_DAYS",
     "Forecast",
+    "ForecastRow",
     "expected_counts",
     "forecast",
     "parse_instant",
@@ -201,7 +202,8 @@ def _check_windows(
     if bad.size:
         i = int(bad[0])
         raise WindowError(
-            f"window {i}: end {ends[i].isoformat()} is not after start {starts[i].isoformat()}"
+            f"window {i}: end {ends[i].isoformat()} is not after start {starts[i].isoformat()}",
+            window=i,
         )
     cal = posterior.calendar
     first = pd.Timestamp(cal.first_day).tz_localize(
@@ -212,7 +214,8 @@ def _check_windows(
         i = int(early[0])
         raise WindowError(
             f"window {i} starts {starts[i].isoformat()}, before the history begins "
-            f"({first.isoformat()}); windows must start on or after it"
+            f"({first.isoformat()}); windows must start on or after it",
+            window=i,
         )
     limit_day = posterior.history_end + dt.timedelta(days=horizon_days)
     limit = pd.Timestamp(limit_day).tz_localize(cal.tz, nonexistent="shift_forward", ambiguous=True)
@@ -221,7 +224,8 @@ def _check_windows(
         i = int(late[0])
         raise WindowError(
             f"window {i} ends {ends[i].isoformat()}, beyond the forecast horizon of {horizon_days} "
-            f"days after the history ({limit.isoformat()})"
+            f"days after the history ({limit.isoformat()})",
+            window=i,
         )
 
 
@@ -403,6 +407,26 @@ def _bin_noise(posterior: CompactPosterior, bin_ids: np.ndarray, slots: np.ndarr
     return np.asarray(noise)
 
 
+class ForecastRow(TypedDict):
+    """Predictive count distribution of one window: the one definition of a forecast row.
+
+    ``start``, ``end``: the window ``[start, end)``, ISO 8601 in the series' zone. ``mean``,
+    ``sd``: predictive mean and standard deviation of the count. ``p_zero``: P(N = 0).
+    ``intervals``: level -> ``[low, high]``, both inclusive, central, holding at least the level.
+    ``quantiles``: level -> the smallest count k with P(N <= k) >= level (exact). ``at_least``:
+    threshold k -> P(N >= k), present only when thresholds were asked for.
+    """
+
+    start: str
+    end: str
+    mean: float
+    sd: float
+    p_zero: float
+    intervals: dict[str, list[int]]
+    quantiles: dict[str, int]
+    at_least: NotRequired[dict[str, float]]
+
+
 @dataclass(frozen=True)
 class Forecast:
     """Predictive summaries for a list of windows (and optionally their total)."""
@@ -413,11 +437,11 @@ class Forecast:
     tz: str
     total: MixtureSummary | None = None
 
-    def rows(self) -> list[dict[str, Any]]:
+    def rows(self) -> list[ForecastRow]:
         """One JSON-ready dict per window."""
         return _rows(self.summary, self.starts, self.ends, self.tz)
 
-    def total_row(self) -> dict[str, Any] | None:
+    def total_row(self) -> ForecastRow | None:
         """The total over all windows, or None if not requested."""
         if self.total is None:
             return None
@@ -426,12 +450,12 @@ class Forecast:
 
 def _rows(
     summary: MixtureSummary, starts: pd.DatetimeIndex, ends: pd.DatetimeIndex, tz: str
-) -> list[dict[str, Any]]:
+) -> list[ForecastRow]:
     local_starts = starts.tz_convert(tz)
     local_ends = ends.tz_convert(tz)
     rows = []
     for i in range(len(starts)):
-        row: dict[str, Any] = {
+        row: ForecastRow = {
             "start": local_starts[i].isoformat(),
             "end": local_ends[i].isoformat(),
             "mean": float(summary.mean[i]),

@@ -25,7 +25,6 @@ from models.exceptions import InputError
 from models.prediction.windows import (
     parse_instant,
     parse_step,
-    split_range,
 )
 from service.cli.common import (
     STORE_HELP,
@@ -42,6 +41,7 @@ from service.queries.capacity import (
     update_document,
 )
 from service.queries.forecast import flat_row
+from service.queries.windows import range_windows
 
 __all__ = ["register", "staffing_csv", "staffing_table", "update_csv", "update_table"]
 
@@ -328,7 +328,7 @@ def _run_update(args: argparse.Namespace) -> int:
         next_day = start.tz_convert(tz).date() + dt.timedelta(days=1)
         end = pd.Timestamp(next_day).tz_localize(tz, nonexistent="shift_forward", ambiguous=True)
     step = parse_step(args.step) if args.step else pd.Timedelta(minutes=calendar.bin_minutes)
-    starts, ends = split_range(start, end, step)
+    starts, ends = range_windows(start, end, step, tz=tz)
     doc = update_document(
         stored,
         o_starts,

@@ -15,11 +15,7 @@ from importlib.resources import files
 from fastapi import APIRouter
 from fastapi.responses import Response
 
-from service.api.deps import ReadAccess, RegistryDep, SettingsDep
 from service.api.errors import ApiError
-from service.api.forecasting import answer, served_version, window_index
-from service.api.schemas import ForecastRequest
-from service.queries.forecast import CAUTION, forecast_csv
 
 __all__ = ["ASSETS", "PAGE_PATH", "router"]
 
@@ -75,35 +71,3 @@ async def asset(name: str) -> Response:
             allowed=", ".join(sorted(ASSETS)),
         )
     return Response(_static(name), media_type=media, headers=_HEADERS)
-
-
-@router.post(
-    PAGE_PATH + "/api/series/{series}/forecast.csv",
-    dependencies=[ReadAccess],
-)
-async def forecast_table(
-    series: str, body: ForecastRequest, registry: RegistryDep, settings: SettingsDep
-) -> Response:
-    """The forecast of explicit windows as the CSV the ``bands`` route writes (same columns)."""
-    stored = served_version(registry, series)
-    starts, ends = window_index(body.windows, tz=body.tz, max_windows=settings.max_windows)
-    doc = await answer(
-        stored,
-        starts,
-        ends,
-        levels=body.levels,
-        quantiles=body.quantiles,
-        at_least=body.at_least,
-        total=False,
-        horizon_days=settings.max_horizon_days,
-        windows=[w.model_dump() for w in body.windows],
-    )
-    return Response(
-        forecast_csv(doc),
-        media_type="text/csv; charset=utf-8",
-        headers={
-            "Content-Disposition": f'attachment; filename="{stored.series}-{stored.version}.csv"',
-            "X-Model-Version": stored.version,
-            "X-Caution": CAUTION,
-        },
-    )

@@ -204,7 +204,7 @@ function forecastCalls(state, entry) {
   return {
     path: `v1/series/${encodeURIComponent(state.series)}/forecast`,
     body,
-    csv: { path: `page/api/series/${encodeURIComponent(state.series)}/forecast.csv`, body },
+    csv: { path: `v1/series/${encodeURIComponent(state.series)}/forecast`, body },
   };
 }
 

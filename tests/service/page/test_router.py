@@ -85,14 +85,14 @@ def test_unknown_asset_is_a_one_line_404_naming_what_exists(client) -> None:
     assert client.get(f"{PAGE_PATH}/assets/..%2Fapi%2Fdeps.py").status_code == 404
 
 
-def test_day_csv_equals_the_csv_of_the_api_forecast_for_the_same_windows(client) -> None:
+def test_day_csv_the_page_downloads_is_the_api_forecast_as_csv(client) -> None:
+    # The page's "Table as CSV" for day windows posts the forecast body with Accept: text/csv.
     body = {"windows": DAYS, "tz": TZ, "levels": [0.8, 0.95], "quantiles": [0.5], "at_least": [50]}
-    url = f"{PAGE_PATH}/api/series/desk-a/forecast.csv"
-    assert client.post(url, json=body).status_code == 401
-    answer = client.post(url, json=body, headers=AUTH)
+    url = "/v1/series/desk-a/forecast"
+    csv_headers = {**AUTH, "Accept": "text/csv"}
+    answer = client.post(url, json=body, headers=csv_headers)
     assert answer.status_code == 200 and answer.headers["content-type"].startswith("text/csv")
-    assert answer.headers["x-model-version"] == "v0001"
-    doc = client.post("/v1/series/desk-a/forecast", json=body, headers=AUTH).json()
+    doc = client.post(url, json=body, headers=AUTH).json()
     assert answer.text == forecast_csv(doc)
     rows = list(csv.DictReader(io.StringIO(answer.text)))
     # Local midnight to local midnight: 24, 23 (clocks forward) and 24 hours.
@@ -102,15 +102,3 @@ def test_day_csv_equals_the_csv_of_the_api_forecast_for_the_same_windows(client)
         ("2026-03-09T00:00:00-05:00", "2026-03-10T00:00:00-05:00"),
     ]
     assert float(rows[1]["mean"]) == 0.0  # Sunday: closed all day
-
-
-def test_day_csv_refuses_bad_input_with_the_api_error_body(client) -> None:
-    url = f"{PAGE_PATH}/api/series/desk-a/forecast.csv"
-    answer = client.post(url, json={"windows": [{"start": "2026-03-07", "end": "2026-03-08"}]},
-                         headers=AUTH)  # fmt: skip
-    assert answer.status_code == 422
-    assert answer.json()["field"] == "windows[0].start"  # a local date without a zone
-    missing = client.post(
-        f"{PAGE_PATH}/api/series/nope/forecast.csv", json={"windows": DAYS, "tz": TZ}, headers=AUTH
-    )
-    assert missing.status_code == 404 and missing.json()["code"] == "series_not_found"
