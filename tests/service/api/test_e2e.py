@@ -134,6 +134,52 @@ def test_serve_reload_and_refuse_a_damaged_version(served: tuple[str, FileStore]
         )
 
 
+def test_an_edited_manifest_is_refused_on_reload_while_the_previous_version_serves(
+    served: tuple[str, FileStore],
+) -> None:
+    base, store = served
+    with httpx.Client(base_url=base, timeout=10) as http:
+        before = http.post("/v1/series/desk-a/forecast", json=WINDOW).json()
+        publish(store, "desk-a", hump_table(2.0), draws=30)
+        manifest = store.root / "desk-a" / "versions" / "v0002" / "manifest.json"
+        body = json.loads(manifest.read_text())
+        body["opening_hours"] = "Mon-Sun 00:00-24:00"  # an edit a careless hand might make
+        manifest.write_text(json.dumps(body, indent=2))
+        reload = http.post("/v1/admin/reload", headers=ADMIN_HEADERS).json()
+        assert reload["loaded"] == []
+        [refused] = reload["refused"]
+        assert (refused["series"], refused["version"]) == ("desk-a", "v0002")
+        assert "seal" in refused["reason"]
+        after = http.post("/v1/series/desk-a/forecast", json=WINDOW).json()
+        assert after == before and after["model_version"] == "v0001"
+
+
+def test_a_removed_store_root_keeps_the_loaded_series_served_and_ready_says_why(
+    served: tuple[str, FileStore],
+) -> None:
+    base, store = served
+    with httpx.Client(base_url=base, timeout=10) as http:
+        before = http.post("/v1/series/desk-a/forecast", json=WINDOW).json()
+        moved = store.root.with_name("store-unmounted")
+        store.root.rename(moved)  # an unmounted volume
+        try:
+            health = http.get("/v1/health/ready")
+            assert health.status_code == 503
+            body = health.json()
+            assert body["ready"] is False and body["store_readable"] is False
+            assert body["store_error"] and str(store.root) not in health.text
+            assert body["serving"] == {"desk-a": "v0001"}
+            assert http.post("/v1/series/desk-a/forecast", json=WINDOW).json() == before
+            reload = http.post("/v1/admin/reload", headers=ADMIN_HEADERS)
+            assert reload.status_code == 503  # the reload could not list the store
+            metrics = parse(http.get("/v1/metrics").text)
+            assert value(metrics, "ratecast_store_readable") == 0
+            assert http.post("/v1/series/desk-a/forecast", json=WINDOW).json() == before
+        finally:
+            moved.rename(store.root)
+        assert http.get("/v1/health/ready").status_code == 200
+
+
 # One window of 400 days after the history (2026-03-02): 9,600 hourly bins x 2,000 draws is
 # 19.2 million bin-draws, within the default budget of 50 million; three are over it.
 LONG = {"windows": [{"start": "2026-03-02T00:00", "end": "2027-04-06T00:00"}], "tz": TZ}
