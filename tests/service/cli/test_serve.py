@@ -53,3 +53,16 @@ class TestServeOptions:
         assert exit_info.value.code == 2
         err = capsys.readouterr().err
         assert f"{option} {value!r}" in err and message in err
+
+
+def test_serve_limits_have_documented_defaults_and_ranges() -> None:
+    # The defaults docs/api.md states; uvicorn's own keep-alive default is also 5 s (from memory).
+    args = build_parser().parse_args(["serve"])
+    assert (args.keep_alive, args.max_connections, args.max_header_bytes) == (5, 512, 16_384)
+    for option, bad in (
+        ("--keep-alive", "0"),
+        ("--max-connections", "x"),
+        ("--max-header-bytes", "10"),
+    ):
+        with pytest.raises(SystemExit):
+            build_parser().parse_args(["serve", option, bad])
