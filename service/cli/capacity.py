@@ -10,8 +10,6 @@ import argparse
 import csv
 import datetime as dt
 import io
-import json
-import sys
 from typing import Any
 
 import numpy as np
@@ -28,6 +26,7 @@ from models.prediction.windows import (
 )
 from service.cli.common import (
     STORE_HELP,
+    emit,
     grid,
     named_file_errors,
     number_list,
@@ -273,13 +272,7 @@ def _run_staff(args: argparse.Namespace) -> int:
         min_agents=args.min_agents,
         agents=agents,
     )
-    if args.format == "json":
-        print(json.dumps(doc, indent=2))
-    elif args.format == "csv":
-        sys.stdout.write(staffing_csv(doc))
-    else:
-        sys.stdout.write(staffing_table(doc))
-    return 0
+    return emit(doc, args.format, csv=staffing_csv, table=staffing_table)
 
 
 def _observed(path: str, *, tz: str, bin_minutes: int) -> tuple[Any, Any, Any]:
@@ -340,13 +333,7 @@ def _run_update(args: argparse.Namespace) -> int:
         quantiles=number_list(args.quantiles, option="--quantiles"),
         seed=args.seed,
     )
-    if args.format == "json":
-        print(json.dumps(doc, indent=2))
-    elif args.format == "csv":
-        sys.stdout.write(update_csv(doc))
-    else:
-        sys.stdout.write(update_table(doc))
-    return 0
+    return emit(doc, args.format, csv=update_csv, table=update_table)
 
 
 def _add_simulate(sub: Any) -> None:

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import argparse
 import datetime as dt
+import json
 import logging
 import os
 import sys
@@ -29,6 +30,7 @@ from service.history import (
 __all__ = [
     "DefaultsHelpFormatter",
     "add_model_options",
+    "emit",
     "grid",
     "holiday_calendar",
     "model_spec",
@@ -159,6 +161,16 @@ def read_history(
         until=until,
         now=now,
     )
+
+
+def emit(doc: Any, fmt: str, *, csv: Any, table: Any) -> int:
+    """Write a command's document as ``fmt``: ``json``, ``csv`` (via ``csv(doc)``) or the table
+    for people (``table(doc)``); returns the exit status 0."""
+    if fmt == "json":
+        print(json.dumps(doc, indent=2))
+    else:
+        sys.stdout.write(csv(doc) if fmt == "csv" else table(doc))
+    return 0
 
 
 def grid(headers: list[str], body: list[list[str]]) -> list[str]:

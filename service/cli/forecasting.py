@@ -12,7 +12,7 @@ import json
 import sys
 from typing import Any
 
-from service.cli.common import STORE_HELP, grid, number_list, store_from_args, window_label
+from service.cli.common import STORE_HELP, emit, grid, number_list, store_from_args, window_label
 from service.queries.forecast import (
     CAUTION,
     flat_row,
@@ -64,13 +64,7 @@ def _run_forecast(args: argparse.Namespace) -> int:
         at_least=number_list(args.at_least, option="--at-least", kind=int),
         total=args.total,
     )
-    if args.format == "json":
-        print(json.dumps(doc, indent=2))
-    elif args.format == "csv":
-        sys.stdout.write(forecast_csv_with_total(doc))
-    else:
-        sys.stdout.write(forecast_table(doc))
-    return 0
+    return emit(doc, args.format, csv=forecast_csv_with_total, table=forecast_table)
 
 
 def forecast_csv_with_total(doc: dict[str, Any]) -> str:
