@@ -8,12 +8,10 @@ from __future__ import annotations
 
 import argparse
 import csv
-import datetime as dt
 import io
 from typing import Any
 
 import numpy as np
-import pandas as pd
 
 from models.capacity.staffing import (
     STAFFING_CAUTION,
@@ -22,7 +20,6 @@ from models.capacity.staffing import (
 from models.exceptions import InputError
 from models.prediction.windows import (
     parse_instant,
-    parse_step,
 )
 from service.cli.common import (
     STORE_HELP,
@@ -38,9 +35,9 @@ from service.queries.capacity import (
     read_observed,
     staffing_document,
     update_document,
+    update_range,
 )
 from service.queries.forecast import flat_row
-from service.queries.windows import range_windows
 
 __all__ = ["register", "staffing_csv", "staffing_table", "update_csv", "update_table"]
 
@@ -314,14 +311,15 @@ def _run_update(args: argparse.Namespace) -> int:
     o_starts, o_ends, counts = _observed(args.observed, tz=tz, bin_minutes=calendar.bin_minutes)
     if len(o_ends) == 0:
         raise InputError(f"observed-counts file {args.observed} has no rows")
-    start = parse_instant(args.start, tz=tz) if args.start else o_ends.max().tz_convert(tz)
-    if args.end:
-        end = parse_instant(args.end, tz=tz)
-    else:
-        next_day = start.tz_convert(tz).date() + dt.timedelta(days=1)
-        end = pd.Timestamp(next_day).tz_localize(tz, nonexistent="shift_forward", ambiguous=True)
-    step = parse_step(args.step) if args.step else pd.Timedelta(minutes=calendar.bin_minutes)
-    starts, ends = range_windows(start, end, step, tz=tz)
+    starts, ends = update_range(
+        args.start,
+        args.end,
+        args.step,
+        observed_ends=o_ends,
+        tz=tz,
+        zone=tz,
+        bin_minutes=calendar.bin_minutes,
+    ).windows()
     doc = update_document(
         stored,
         o_starts,
