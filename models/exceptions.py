@@ -12,7 +12,8 @@ Every error sits on a standard base so callers can catch it either way::
     ├── SeriesNotFound (LookupError)     no published series of that name
     ├── StoreError (RuntimeError)        the store cannot be read or written
     │   └── CorruptArtefact              checksum or structure mismatch in a stored version
-    └── FitRejected (RuntimeError)       the diagnostics gate refused to publish a fit
+    ├── FitRejected (RuntimeError)       the diagnostics gate refused to publish a fit
+    └── DegradedVersion (RuntimeError)   a caller refused a version published despite the gate
 
 An :class:`InputError` may also carry *where* it is, as fields a caller can read without parsing
 the message: ``field`` (the argument or input field, e.g. ``"start"``), ``value`` (what was
@@ -27,6 +28,7 @@ from typing import Any
 __all__ = [
     "CorruptArtefact",
     "CountError",
+    "DegradedVersion",
     "FitRejected",
     "InputError",
     "LimitError",
@@ -143,3 +145,8 @@ class FitRejected(RatecastError, RuntimeError):
     def __init__(self, message: str, problems: list[str]) -> None:
         super().__init__(message + "\n" + "\n".join(f"  - {p}" for p in problems))
         self.problems = problems
+
+
+class DegradedVersion(RatecastError, RuntimeError):
+    """The version asked about was published with ``--force`` although its fit failed the
+    diagnostics gate, and the caller asked to refuse such versions."""

@@ -103,6 +103,22 @@ class StoredVersion:
     posterior: CompactPosterior = field(repr=False)
     sealed: bool = True
 
+    @property
+    def degraded(self) -> bool:
+        """True when the version was published with ``--force`` although its fit failed the
+        diagnostics gate: its forecasts come from chains that did not converge."""
+        fit = self.manifest.get("fit", {})
+        return bool(fit.get("degraded", fit.get("forced", False)))
+
+    @property
+    def degraded_problems(self) -> list[str]:
+        """What the gate found wrong with a degraded version (empty otherwise)."""
+        if not self.degraded:
+            return []
+        fit = self.manifest.get("fit", {})
+        problems = fit.get("problems") or self.manifest.get("diagnostics", {}).get("problems", [])
+        return [str(p) for p in problems]
+
 
 class PosteriorStore(Protocol):
     """What the CLI and the API need from a store."""

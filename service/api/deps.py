@@ -13,14 +13,14 @@ from collections.abc import Awaitable, Callable
 from dataclasses import dataclass
 from typing import Annotated, Any
 
-from fastapi import APIRouter, Depends, Header, Request
+from fastapi import APIRouter, Depends, Header, Request, Response
 from fastapi.security import HTTPAuthorizationCredentials, HTTPBearer
 from pydantic import SecretStr
 
 from models.store import StoredVersion
 from service.api.errors import ApiError
 from service.api.forecasting import served_version
-from service.api.media import wants_csv
+from service.api.media import version_headers, wants_csv
 from service.api.registry import Registry
 from service.api.schemas import error_responses
 from service.api.telemetry import Metrics
@@ -76,14 +76,23 @@ class SeriesCall:
 
 
 async def series_call(
-    series: str, request: Request, accept: Annotated[str | None, Header()] = None
+    series: str,
+    request: Request,
+    response: Response,
+    accept: Annotated[str | None, Header()] = None,
 ) -> SeriesCall:
-    """The :class:`SeriesCall` of a request (406 or 404/422 on a bad Accept or series)."""
+    """The :class:`SeriesCall` of a request (406 or 404/422 on a bad Accept or series).
+
+    Every answer about the series carries the version it comes from in ``X-Model-Version`` and
+    whether that version is degraded (published although its fit failed the diagnostics gate)
+    in ``X-Model-Degraded``, JSON and CSV alike (:func:`~service.api.media.version_headers`).
+    """
     state = request.app.state
     work: WorkPool = state.work
     deadline = work.deadline()
     csv = wants_csv(accept)
     stored = served_version(state.registry, series)
+    response.headers.update(version_headers(stored))
     return SeriesCall(stored, csv, deadline, state.settings, work)
 
 

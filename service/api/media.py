@@ -64,8 +64,16 @@ def wants_csv(accept: str | None) -> bool:
     )
 
 
+def version_headers(stored: StoredVersion) -> dict[str, str]:
+    """The version an answer comes from, and whether it is degraded (``true``/``false``)."""
+    return {
+        "X-Model-Version": stored.version,
+        "X-Model-Degraded": "true" if stored.degraded else "false",
+    }
+
+
 def csv_response(text: str, stored: StoredVersion, *, caution: str, name: str) -> Response:
-    """A CSV answer with the version and the caution in its headers."""
+    """A CSV answer with the version, whether it is degraded, and the caution in its headers."""
     return Response(
         text,
         media_type="text/csv; charset=utf-8",
@@ -73,7 +81,7 @@ def csv_response(text: str, stored: StoredVersion, *, caution: str, name: str) -
             "Content-Disposition": (
                 f'inline; filename="{stored.series}-{stored.version}-{name}.csv"'
             ),
-            "X-Model-Version": stored.version,
+            **version_headers(stored),
             "X-Caution": caution,
         },
     )

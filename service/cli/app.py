@@ -14,14 +14,27 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import NoReturn
 
-from models.exceptions import FitRejected, InputError, RatecastError, SeriesNotFound, StoreError
+from models.exceptions import (
+    DegradedVersion,
+    FitRejected,
+    InputError,
+    RatecastError,
+    SeriesNotFound,
+    StoreError,
+)
 from service.cli import backtest, capacity, fitting, forecasting, plan, serve
 from service.cli.common import DefaultsHelpFormatter, quiet_library_warnings
 from service.queries.forecast import CAUTION
 
 __all__ = ["build_parser", "main", "package_version"]
 
-_EXIT = ((InputError, 2), (SeriesNotFound, 3), (FitRejected, 4), (StoreError, 5))
+_EXIT = (
+    (InputError, 2),
+    (SeriesNotFound, 3),
+    (FitRejected, 4),
+    (StoreError, 5),
+    (DegradedVersion, 6),
+)
 _GROUPS = (fitting, forecasting, plan, serve, capacity, backtest)
 
 

@@ -7,8 +7,7 @@ HTTP API. Every staffing output carries :data:`models.capacity.staffing.STAFFING
 from __future__ import annotations
 
 import argparse
-import csv
-import io
+from functools import partial
 from typing import Any
 
 import numpy as np
@@ -23,6 +22,8 @@ from models.prediction.windows import (
 )
 from service.cli.common import (
     STORE_HELP,
+    add_degraded_option,
+    check_degraded,
     emit,
     grid,
     named_file_errors,
@@ -33,13 +34,14 @@ from service.cli.common import (
 from service.queries.capacity import (
     plan_windows,
     read_observed,
+    staffing_csv,
     staffing_document,
+    update_csv,
     update_document,
     update_range,
 )
-from service.queries.forecast import flat_row
 
-__all__ = ["register", "staffing_csv", "staffing_table", "update_csv", "update_table"]
+__all__ = ["register", "staffing_table", "update_table"]
 
 # ----------------------------------------------------------------------------- rendering
 
@@ -125,31 +127,6 @@ def staffing_table(doc: dict[str, Any]) -> str:
     return "\n".join(lines) + "\n"
 
 
-def staffing_csv(doc: dict[str, Any]) -> str:
-    """One flat row per interval, plain CSV: the caution is the last column, ``caution``, on
-    every row (so it survives any filtering of rows)."""
-    rows = []
-    for row in doc["intervals"]:
-        flat: dict[str, Any] = {
-            "start": row["start"],
-            "end": row["end"],
-            "mean_arrivals": round(row["mean_arrivals"], 3),
-            "quantile_arrivals": row["quantile_arrivals"],
-            "mean_load_erlangs": round(row["mean_load_erlangs"], 4),
-        }
-        for policy in ("plug_in", "assured", "given"):
-            if policy in row:
-                for key, value in row[policy].items():
-                    flat[f"{policy}_{key}"] = round(value, 6) if isinstance(value, float) else value
-        flat["caution"] = doc["caution"]
-        rows.append(flat)
-    buffer = io.StringIO()
-    writer = csv.DictWriter(buffer, fieldnames=list(rows[0]))
-    writer.writeheader()
-    writer.writerows(rows)
-    return buffer.getvalue()
-
-
 def update_table(doc: dict[str, Any]) -> str:
     """Before and after per window, with the update's facts and the caution."""
     first = doc["windows"][0]
@@ -183,16 +160,6 @@ def update_table(doc: dict[str, Any]) -> str:
         doc["caution"],
     ]
     return "\n".join(lines) + "\n"
-
-
-def update_csv(doc: dict[str, Any]) -> str:
-    """One flat row per window, with the mean before the update."""
-    rows = [{**flat_row(r), "before_mean": round(r["before"]["mean"], 3)} for r in doc["windows"]]
-    buffer = io.StringIO()
-    writer = csv.DictWriter(buffer, fieldnames=list(rows[0]))
-    writer.writeheader()
-    writer.writerows(rows)
-    return buffer.getvalue()
 
 
 # ----------------------------------------------------------------------------- commands
@@ -245,11 +212,13 @@ def _add_staff(sub: Any) -> None:
         help="a staffing to evaluate: one number, or one per interval (default: none)",
     )
     p.add_argument("--format", choices=("table", "json", "csv"), default="table", help="output")
+    add_degraded_option(p)
     p.set_defaults(run=_run_staff)
 
 
 def _run_staff(args: argparse.Namespace) -> int:
     stored = store_from_args(args).load(args.series, args.version)
+    check_degraded(args, stored)
     tz = stored.posterior.calendar.tz
     starts, ends = plan_windows(args.start, args.end, step=args.step, tz=tz)
     target = ServiceTarget(
@@ -269,7 +238,9 @@ def _run_staff(args: argparse.Namespace) -> int:
         min_agents=args.min_agents,
         agents=agents,
     )
-    return emit(doc, args.format, csv=staffing_csv, table=staffing_table)
+    return emit(
+        doc, args.format, csv=partial(staffing_csv, caution_column=True), table=staffing_table
+    )
 
 
 def _observed(path: str, *, tz: str, bin_minutes: int) -> tuple[Any, Any, Any]:
@@ -301,11 +272,13 @@ def _add_update(sub: Any) -> None:
     p.add_argument("--quantiles", default="", help="quantile levels, e.g. 0.5,0.9")
     p.add_argument("--seed", type=int, default=None, help="seed (default: the version's own)")
     p.add_argument("--format", choices=("table", "json", "csv"), default="table", help="output")
+    add_degraded_option(p)
     p.set_defaults(run=_run_update)
 
 
 def _run_update(args: argparse.Namespace) -> int:
     stored = store_from_args(args).load(args.series, args.version)
+    check_degraded(args, stored)
     calendar = stored.posterior.calendar
     tz = calendar.tz
     o_starts, o_ends, counts = _observed(args.observed, tz=tz, bin_minutes=calendar.bin_minutes)
@@ -344,6 +317,7 @@ def _add_simulate(sub: Any) -> None:
     p.add_argument("--replicates", type=int, default=1, help="independent streams to sample")
     p.add_argument("--seed", type=int, default=None, help="seed (default: the version's own)")
     p.add_argument("--out", required=True, help="output file ending in .csv or .parquet")
+    add_degraded_option(p)
     p.set_defaults(run=_run_simulate)
 
 
@@ -351,6 +325,7 @@ def _run_simulate(args: argparse.Namespace) -> int:
     from models.prediction.simulate import simulate_arrivals, write_arrivals
 
     stored = store_from_args(args).load(args.series, args.version)
+    check_degraded(args, stored)
     tz = stored.posterior.calendar.tz
     start, end = parse_instant(args.start, tz=tz), parse_instant(args.end, tz=tz)
     arrivals = simulate_arrivals(

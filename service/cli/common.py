@@ -18,7 +18,7 @@ from pathlib import Path
 from typing import Any, TextIO
 from zoneinfo import ZoneInfo
 
-from models.exceptions import InputError, StoreError
+from models.exceptions import DegradedVersion, InputError, StoreError
 from models.fitting.options import FitOptions
 from service.history import (
     holiday_calendar,
@@ -29,7 +29,9 @@ from service.history import (
 
 __all__ = [
     "DefaultsHelpFormatter",
+    "add_degraded_option",
     "add_model_options",
+    "check_degraded",
     "emit",
     "grid",
     "holiday_calendar",
@@ -165,12 +167,41 @@ def read_history(
 
 def emit(doc: Any, fmt: str, *, csv: Any, table: Any) -> int:
     """Write a command's document as ``fmt``: ``json``, ``csv`` (via ``csv(doc)``) or the table
-    for people (``table(doc)``); returns the exit status 0."""
+    for people (``table(doc)``, under a warning when the version is degraded); returns 0."""
     if fmt == "json":
         print(json.dumps(doc, indent=2))
+    elif fmt == "csv":
+        sys.stdout.write(csv(doc))
     else:
-        sys.stdout.write(csv(doc) if fmt == "csv" else table(doc))
+        if doc.get("degraded"):
+            print(
+                f"WARNING: {doc['series']} {doc['model_version']} is DEGRADED: it was published "
+                "with --force although its fit failed the diagnostics gate; do not plan on it "
+                "(refit it, or pass --refuse-degraded in pipelines)."
+            )
+        sys.stdout.write(table(doc))
     return 0
+
+
+def add_degraded_option(p: argparse.ArgumentParser) -> None:
+    """``--refuse-degraded``: fail (exit 6) instead of answering from a degraded version."""
+    p.add_argument(
+        "--refuse-degraded",
+        action="store_true",
+        help="exit with status 6 instead of answering when the version was published with "
+        "--force although its fit failed the diagnostics gate (for pipelines)",
+    )
+
+
+def check_degraded(args: argparse.Namespace, stored: Any) -> None:
+    """Raise :class:`~models.exceptions.DegradedVersion` if ``--refuse-degraded`` was given and
+    ``stored`` is degraded."""
+    if getattr(args, "refuse_degraded", False) and stored.degraded:
+        problems = "; ".join(stored.degraded_problems[:3]) or "the gate's report is not stored"
+        raise DegradedVersion(
+            f"{stored.series} {stored.version} is degraded (published with --force although its "
+            f"fit failed the diagnostics gate: {problems}); refusing it as --refuse-degraded asks"
+        )
 
 
 def grid(headers: list[str], body: list[list[str]]) -> list[str]:

@@ -6,22 +6,29 @@ Forecast documents come from :mod:`service.queries.forecast`, the same code as t
 from __future__ import annotations
 
 import argparse
-import csv
-import io
 import json
 import sys
 from typing import Any
 
-from service.cli.common import STORE_HELP, emit, grid, number_list, store_from_args, window_label
+from models.exceptions import RatecastError
+from service.cli.common import (
+    STORE_HELP,
+    add_degraded_option,
+    check_degraded,
+    emit,
+    grid,
+    number_list,
+    store_from_args,
+    window_label,
+)
 from service.queries.forecast import (
     CAUTION,
-    flat_row,
     forecast_csv,
     forecast_document,
     range_windows,
 )
 
-__all__ = ["forecast_csv_with_total", "forecast_table", "register"]
+__all__ = ["forecast_table", "register"]
 
 
 # ----------------------------------------------------------------------------- forecast
@@ -47,11 +54,13 @@ def _add_forecast(sub: Any) -> None:
     p.add_argument("--version", default=None, help="a stored version (default: the current one)")
     p.add_argument("--format", choices=("table", "json", "csv"), default="table", help="output")
     p.add_argument("--store", default=None, help=STORE_HELP)
+    add_degraded_option(p)
     p.set_defaults(run=_run_forecast)
 
 
 def _run_forecast(args: argparse.Namespace) -> int:
     stored = store_from_args(args).load(args.series, args.version)
+    check_degraded(args, stored)
     starts, ends = range_windows(
         args.start, args.end, step=args.step, tz=stored.posterior.calendar.tz
     )
@@ -64,21 +73,7 @@ def _run_forecast(args: argparse.Namespace) -> int:
         at_least=number_list(args.at_least, option="--at-least", kind=int),
         total=args.total,
     )
-    return emit(doc, args.format, csv=forecast_csv_with_total, table=forecast_table)
-
-
-def forecast_csv_with_total(doc: dict[str, Any]) -> str:
-    """Flat CSV of a forecast document; with a total, a last column ``kind`` tells the windows
-    (``window``) from the total over them (``total``, its start and end those of the range)."""
-    if not doc.get("total"):
-        return forecast_csv(doc)
-    rows = [{**flat_row(row), "kind": "window"} for row in doc["windows"]]
-    rows.append({**flat_row(doc["total"]), "kind": "total"})
-    buffer = io.StringIO()
-    writer = csv.DictWriter(buffer, fieldnames=list(rows[0]))
-    writer.writeheader()
-    writer.writerows(rows)
-    return buffer.getvalue()
+    return emit(doc, args.format, csv=forecast_csv, table=forecast_table)
 
 
 def forecast_table(doc: dict[str, Any]) -> str:
@@ -125,15 +120,23 @@ def _run_series(args: argparse.Namespace) -> int:
     names = store.series()
     if not names:
         print(f"no series published in {store.root}")
+    damaged = 0
     for name in names:
-        manifest = store.load(name).manifest
-        data = manifest["data"]
+        try:
+            stored = store.load(name)
+        except RatecastError as exc:  # one damaged series must not hide the others
+            damaged += 1
+            print(f"{name}  DAMAGED: {exc}")
+            continue
+        manifest, calendar = stored.manifest, stored.posterior.calendar
+        gate = {True: "ok", False: "FAILED"}.get(manifest.get("diagnostics", {}).get("ok"), "-")
         print(
-            f"{name}  {manifest['version']}  history {data['first_day']} up to {data['end_day']} "
-            f"(end exclusive)  {data['tz']}  fitted {manifest['created_at']}  "
-            f"gate {'ok' if manifest['diagnostics']['ok'] else 'FAILED'}"
+            f"{name}  {stored.version}  history {calendar.first_day} up to "
+            f"{stored.posterior.history_end} (end exclusive)  {calendar.tz}  fitted "
+            f"{manifest.get('created_at', '-')}  gate {gate}"
+            + ("  DEGRADED (published with --force)" if stored.degraded else "")
         )
-    return 0
+    return 5 if damaged else 0
 
 
 # ----------------------------------------------------------------------------- example data

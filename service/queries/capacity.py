@@ -33,7 +33,7 @@ from models.prediction.windows import (
     expected_counts,
 )
 from models.store import StoredVersion
-from service.queries.forecast import CAUTION, flat_row, table_csv
+from service.queries.forecast import CAUTION, document_csv, flat_row
 from service.queries.windows import Range, parse_range, parse_time, range_windows
 
 __all__ = [
@@ -95,6 +95,7 @@ class StaffingDocument(TypedDict):
 
     series: str
     model_version: str
+    degraded: bool
     tz: str
     target: StaffingTarget
     meet_probability: float
@@ -124,6 +125,7 @@ class UpdateDocument(TypedDict):
 
     series: str
     model_version: str
+    degraded: bool
     tz: str
     day: str
     observed_total: int
@@ -235,6 +237,7 @@ def staffing_document(
     doc: dict[str, Any] = {
         "series": stored.series,
         "model_version": stored.version,
+        "degraded": stored.degraded,
         "tz": tz,
         "target": {
             "handle_time_seconds": target.handle_time,
@@ -309,6 +312,7 @@ def update_document(
     doc: dict[str, Any] = {
         "series": stored.series,
         "model_version": stored.version,
+        "degraded": stored.degraded,
         "tz": tz,
         "day": result.day.isoformat(),
         "observed_total": result.observed_total,
@@ -322,19 +326,23 @@ def update_document(
     return doc
 
 
-def staffing_csv(doc: Mapping[str, Any]) -> str:
+def staffing_csv(doc: Mapping[str, Any], *, caution_column: bool = False) -> str:
     """Plain CSV of a plan, one row per interval, columns named after the JSON keys
     (``plug_in_agents``, ``assured_scheduled``, ``given_miss_probability``...).
 
     Nothing but the header and the rows: the caution travels beside it (an HTTP header in the
-    API), never as a comment line that CSV readers would take for data.
+    API, the last column with ``caution_column`` on the command line), never as a comment line
+    that CSV readers would take for data.
     """
-    return table_csv([flat_row(row) for row in doc["intervals"]])
+    rows = [flat_row(row) for row in doc["intervals"]]
+    return document_csv(rows, doc, caution_column=caution_column)
 
 
-def update_csv(doc: Mapping[str, Any]) -> str:
+def update_csv(doc: Mapping[str, Any], *, caution_column: bool = False) -> str:
     """Plain CSV of an updated forecast, one row per window (``before_mean``, ``before_sd``)."""
-    return table_csv([flat_row(row) for row in doc["windows"]])
+    return document_csv(
+        [flat_row(row) for row in doc["windows"]], doc, caution_column=caution_column
+    )
 
 
 def read_observed(

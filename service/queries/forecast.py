@@ -39,11 +39,14 @@ class ForecastDocument(TypedDict):
     """Forecast document: the same shape for ``ratecast forecast --format json`` and the API.
 
     ``tz`` is the series' zone, in which window times are given; ``total`` (present when asked
-    for) is the distribution of the sum over all windows, from the same draws.
+    for) is the distribution of the sum over all windows, from the same draws. ``degraded`` is
+    true when the version was published although its fit failed the diagnostics gate: a
+    pipeline should not plan on it.
     """
 
     series: str
     model_version: str
+    degraded: bool
     tz: str
     windows: list[ForecastRow]
     total: NotRequired[ForecastRow]
@@ -79,6 +82,7 @@ def forecast_document(
     doc: dict[str, Any] = {
         "series": stored.series,
         "model_version": stored.version,
+        "degraded": stored.degraded,
         "tz": stored.posterior.calendar.tz,
         "windows": result.rows(),
     }
@@ -120,6 +124,18 @@ def _cell(key: str, value: Any) -> Any:
     return round(value, _DIGITS.get(key, 6)) if isinstance(value, float) else value
 
 
+def document_csv(
+    rows: Sequence[Mapping[str, Any]], doc: Mapping[str, Any], *, caution_column: bool = False
+) -> str:
+    """Plain CSV of a document's flat rows; every row also says whether the version is
+    ``degraded`` (so a pipeline that filters rows still sees it) and, with ``caution_column``
+    (where no HTTP header can carry it, as on the command line), the caution."""
+    extra: dict[str, Any] = {"degraded": bool(doc.get("degraded", False))}
+    if caution_column:
+        extra["caution"] = doc["caution"]
+    return table_csv([{**row, **extra} for row in rows])
+
+
 def table_csv(rows: Sequence[Mapping[str, Any]]) -> str:
     """Plain CSV of flat rows: one header line, one line per row, nothing else."""
     buffer = io.StringIO()
@@ -129,14 +145,15 @@ def table_csv(rows: Sequence[Mapping[str, Any]]) -> str:
     return buffer.getvalue()
 
 
-def forecast_csv(doc: Mapping[str, Any]) -> str:
+def forecast_csv(doc: Mapping[str, Any], *, caution_column: bool = False) -> str:
     """Flat CSV of a forecast document, one row per window.
 
     With a total, a first column ``row`` says ``window`` or ``total``, and the total is the last
-    row (its ``start`` and ``end`` span all the windows).
+    row (its ``start`` and ``end`` span all the windows). See :func:`document_csv` for the last
+    columns.
     """
     rows = [flat_row(r) for r in doc["windows"]]
     if "total" in doc:
         rows = [{"row": "window", **r} for r in rows]
         rows.append({"row": "total", **flat_row(doc["total"])})
-    return table_csv(rows)
+    return document_csv(rows, doc, caution_column=caution_column)

@@ -47,6 +47,7 @@ def summary(stored: StoredVersion, *, horizon_days: int) -> dict[str, Any]:
         "forecast_until": forecast_until(stored, horizon_days).isoformat(),
         "fitted_at": stored.manifest.get("created_at"),
         "draws": posterior.n_draws,
+        "degraded": stored.degraded,
         "diagnostics": _diagnostics(stored.manifest),
     }
 

@@ -38,6 +38,11 @@ class SeriesSummary(BaseModel):
     forecast_until: str = Field(description="Latest window end allowed (local date, exclusive).")
     fitted_at: str | None = Field(None, description="When the version was published (UTC).")
     draws: int
+    degraded: bool = Field(
+        False,
+        description="Published although its fit failed the diagnostics gate (with --force): do "
+        "not plan on it.",
+    )
     diagnostics: DiagnosticsSummary | None = None
 
 

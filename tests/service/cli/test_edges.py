@@ -340,7 +340,8 @@ class TestOutputs:
         )  # fmt: skip
         assert code == 0
         rows = list(csv.DictReader(io.StringIO(out)))
-        assert [r["kind"] for r in rows] == ["window"] * 3 + ["total"]
+        assert [r["row"] for r in rows] == ["window"] * 3 + ["total"]  # the API's CSV columns
+        assert {r["degraded"] for r in rows} == {"False"}
         total = rows[-1]
         assert total["start"] == rows[0]["start"] and total["end"] == rows[2]["end"]
         assert float(total["mean"]) == pytest.approx(sum(float(r["mean"]) for r in rows[:3]), 1e-3)
