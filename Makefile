@@ -7,7 +7,7 @@ STAMP := $(VENV)/.installed
 export PYTENSOR_FLAGS ?= compiledir=$(CURDIR)/.cache/pytensor
 export RATECAST_STORE ?= $(CURDIR)/store
 
-.PHONY: install demo test check bench evidence clean
+.PHONY: install browser demo test check bench evidence clean
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -16,6 +16,13 @@ $(STAMP): pyproject.toml
 	touch $(STAMP)
 
 install: $(STAMP)
+
+# The page's browser test drives Debian's Chromium (headless); install it when missing and root.
+browser:
+	@command -v chromium >/dev/null 2>&1 || { \
+		if [ "$$(id -u)" = 0 ] && command -v apt-get >/dev/null 2>&1; then \
+			apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq chromium >/dev/null; \
+		else echo "chromium is not installed (apt-get install chromium): the page test will be skipped"; fi; }
 
 demo: $(STAMP)
 	$(BIN)/ratecast example-data --out .demo
@@ -26,7 +33,7 @@ demo: $(STAMP)
 	$(BIN)/ratecast forecast --series ferry-desk --start 2026-04-27T09:00 --end 2026-04-27T09:30 \
 		--at-least 1,10
 
-test: $(STAMP)
+test: $(STAMP) browser
 	$(BIN)/python -m pytest
 
 check: $(STAMP)

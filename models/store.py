@@ -5,29 +5,44 @@ File layout, one folder per series::
     <root>/<series>/versions/v0003/manifest.json   what, when, from which data, diagnostics, checksums
     <root>/<series>/versions/v0003/draws.npz       compact draws prediction needs
     <root>/<series>/versions/v0003/posterior.nc    full ArviZ data, for diagnostics only
+    <root>/<series>/versions/v0003/SEAL            one checksum over every file above
     <root>/<series>/CURRENT                        name of the version served by default
+    <root>/<series>/.publish.lock                  held while a version of the series is published
 
 A version is written into a hidden temporary folder, flushed to disk, then renamed into place in one
 step, and only then does ``CURRENT`` move (itself written to a temporary file and renamed). A reader
-therefore sees the old version or the new one, never half of one; a crash leaves at most a hidden
-temporary folder that readers ignore and the next publish removes.
+therefore sees the old version or the new one, never half of one. Publishers of one series take
+turns on its lock file, so whatever hidden temporary a publisher finds while holding the lock was
+left by a crash, and it removes it. A complete version that a crash kept from becoming current is
+kept, and the next version's manifest names it under ``skipped_versions``.
+
+The seal makes a version tamper-evident: it lists the SHA-256 of every file of the version, the
+manifest included, and a digest over that list. Loading verifies every file against it, so an
+edited manifest (say, its opening hours) or a damaged draws file is refused, and the server keeps
+serving the version it had. It guards against accidents and careless edits, not against someone
+who rewrites the seal as well. Versions written before seals existed (format
+``ratecast-posterior/1``) load with the draws checksum alone and report ``sealed=False``.
 """
 
 from __future__ import annotations
 
+import contextlib
 import datetime as dt
+import fcntl
 import hashlib
 import json
 import os
 import re
 import shutil
 import tempfile
-import time
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Protocol
 
 from models.exceptions import CorruptArtefact, InputError, SeriesNotFound, StoreError
+from models.files import atomic_write, fsync_path, sha256_of, write_synced
+from models.fitting.verdict import fit_problems, is_degraded
 from models.prediction.posterior import CompactPosterior
 
 __all__ = [
@@ -41,10 +56,13 @@ __all__ = [
 ]
 
 #: Format tag written into every manifest.
-FORMAT = "ratecast-posterior/1"
+FORMAT = "ratecast-posterior/2"
+#: Manifests of this format have no seal; they still load (draws checksum only).
+UNSEALED_FORMAT = "ratecast-posterior/1"
+SEAL = "SEAL"
+_SEAL_FORMAT = "ratecast-seal/1"
 _SERIES = re.compile(r"^[a-z0-9][a-z0-9._-]{0,63}$")
 _VERSION = re.compile(r"^v(\d{4,})$")
-_STALE_SECONDS = 3600
 
 
 def check_series_name(name: str) -> str:
@@ -84,6 +102,19 @@ class StoredVersion:
     version: str
     manifest: dict[str, Any]
     posterior: CompactPosterior = field(repr=False)
+    sealed: bool = True
+
+    @property
+    def degraded(self) -> bool:
+        """True when the version was published with ``--force`` although its fit failed the
+        diagnostics gate: its forecasts come from chains that did not converge
+        (:func:`models.fitting.verdict.is_degraded`)."""
+        return is_degraded(self.manifest)
+
+    @property
+    def degraded_problems(self) -> list[str]:
+        """What the gate found wrong with a degraded version (empty otherwise)."""
+        return fit_problems(self.manifest)
 
 
 class PosteriorStore(Protocol):
@@ -201,7 +232,7 @@ class FileStore:
         manifest: dict[str, Any],
         idata: Any | None = None,
     ) -> StoredVersion:
-        """Write a new version atomically, then point ``CURRENT`` at it."""
+        """Write a new version atomically, seal it, then point ``CURRENT`` at it."""
         check_series_name(series)
         series_dir = self.root / series
         versions_dir = series_dir / "versions"
@@ -209,41 +240,51 @@ class FileStore:
             versions_dir.mkdir(parents=True, exist_ok=True)
         except OSError as exc:
             raise StoreError(f"cannot create store folder {versions_dir}: {exc}") from exc
-        self._remove_stale_temporaries(series_dir)
-        staging = Path(tempfile.mkdtemp(prefix=".publishing-", dir=series_dir))
-        try:
-            files = {"draws.npz": posterior.to_bytes()}
-            for name, payload in files.items():
-                _write_synced(staging / name, payload)
-            if idata is not None:
-                idata.to_netcdf(str(staging / "posterior.nc"))
-                _fsync_path(staging / "posterior.nc")
-            checksums = {
-                path.name: {"sha256": _sha256(path), "bytes": path.stat().st_size}
-                for path in sorted(staging.iterdir())
-            }
-            for _attempt in range(20):
+        with self._publishing(series_dir):
+            self._remove_leftovers(series_dir)
+            staging = Path(tempfile.mkdtemp(prefix=".publishing-", dir=series_dir))
+            try:
+                write_synced(staging / "draws.npz", posterior.to_bytes())
+                if idata is not None:
+                    idata.to_netcdf(str(staging / "posterior.nc"))
+                    fsync_path(staging / "posterior.nc")
+                checksums = {
+                    path.name: {"sha256": sha256_of(path), "bytes": path.stat().st_size}
+                    for path in sorted(staging.iterdir())
+                }
                 version = self._next_version(series)
                 body = _build_manifest(series, version, posterior, manifest)
                 body["files"] = checksums
-                _write_synced(staging / "manifest.json", json.dumps(body, indent=2).encode())
+                skipped = self._never_current(series)
+                if skipped:
+                    body["skipped_versions"] = skipped
+                write_synced(staging / "manifest.json", json.dumps(body, indent=2).encode())
+                write_synced(staging / SEAL, _seal(staging))
                 try:
                     self._commit(staging, versions_dir / version)
-                    break
-                except FileExistsError:
-                    continue  # a concurrent publisher took this number; take the next
                 except OSError as exc:
-                    if (versions_dir / version).exists():
-                        continue
-                    raise StoreError(f"cannot move version into place: {exc}") from exc
-            else:
-                raise StoreError(f"could not allocate a version number for {series!r}")
-            _fsync_path(versions_dir)
-            self._set_current(series_dir, version)
-        finally:
-            if staging.exists():
-                shutil.rmtree(staging, ignore_errors=True)
+                    raise StoreError(f"cannot move version {version} into place: {exc}") from exc
+                fsync_path(versions_dir)
+                self._set_current(series_dir, version)
+            finally:
+                if staging.exists():
+                    shutil.rmtree(staging, ignore_errors=True)
         return StoredVersion(series, version, body, posterior)
+
+    @contextlib.contextmanager
+    def _publishing(self, series_dir: Path) -> Iterator[None]:
+        """Hold the series' publish lock (publishers of one series take turns; readers never
+        wait). The lock is released by the kernel if the process dies."""
+        try:
+            handle = (series_dir / ".publish.lock").open("a")
+        except OSError as exc:
+            raise StoreError(f"cannot open the publish lock of {series_dir.name!r}: {exc}") from exc
+        with handle:
+            fcntl.flock(handle.fileno(), fcntl.LOCK_EX)
+            try:
+                yield
+            finally:
+                fcntl.flock(handle.fileno(), fcntl.LOCK_UN)
 
     def _commit(self, staging: Path, target: Path) -> None:
         # os.rename of a folder onto a non-existent name is atomic on POSIX file systems.
@@ -252,7 +293,7 @@ class FileStore:
         staging.rename(target)
 
     def _set_current(self, series_dir: Path, version: str) -> None:
-        _atomic_write(series_dir / "CURRENT", (version + "\n").encode())
+        atomic_write(series_dir / "CURRENT", (version + "\n").encode())
 
     def _next_version(self, series: str) -> str:
         numbers = [
@@ -260,19 +301,44 @@ class FileStore:
         ]
         return f"v{max(numbers, default=0) + 1:04d}"
 
-    def _remove_stale_temporaries(self, series_dir: Path) -> None:
-        now = time.time()
+    def _never_current(self, series: str) -> list[str]:
+        """Complete versions newer than the current one: a publisher stopped before moving
+        ``CURRENT``. They are kept; the next manifest names them."""
+        try:
+            current = int(self.current_version(series)[1:])
+        except (SeriesNotFound, StoreError):
+            current = 0
+        return [v for v in self._all_version_names(series) if int(v[1:]) > current]
+
+    def _remove_leftovers(self, series_dir: Path) -> None:
+        """Remove what crashed publishers left: staging folders and ``CURRENT`` temporaries.
+        Called with the publish lock held, so no live publisher owns any of them."""
         for leftover in series_dir.glob(".publishing-*"):
-            if now - leftover.stat().st_mtime > _STALE_SECONDS:
-                shutil.rmtree(leftover, ignore_errors=True)
+            shutil.rmtree(leftover, ignore_errors=True)
+        for leftover in series_dir.glob(".CURRENT.*"):
+            leftover.unlink(missing_ok=True)
 
     # -------------------------------------------------------------- reading
     def series(self) -> list[str]:
-        if not self.root.exists():
-            return []
-        return sorted(
-            p.name for p in self.root.iterdir() if p.is_dir() and (p / "CURRENT").exists()
-        )
+        """Names of all series with a current version.
+
+        Raises
+        ------
+        StoreError
+            If the store folder does not exist or cannot be read: a missing root is not an empty
+            store (an unmounted volume must not look like "nothing published").
+        """
+        if not self.root.is_dir():
+            what = "is not a folder" if self.root.exists() else "does not exist"
+            raise StoreError(
+                f"store folder {self.root} {what}; publish a series with 'ratecast fit' or "
+                "point --store / RATECAST_STORE at the store"
+            )
+        try:
+            entries = list(self.root.iterdir())
+        except OSError as exc:
+            raise StoreError(f"store folder {self.root} cannot be read: {exc}") from exc
+        return sorted(p.name for p in entries if p.is_dir() and (p / "CURRENT").exists())
 
     def _all_version_names(self, series: str) -> list[str]:
         versions_dir = self.root / series / "versions"
@@ -296,7 +362,8 @@ class FileStore:
         return name
 
     def load(self, series: str, version: str | None = None) -> StoredVersion:
-        """Load and verify a version; a checksum mismatch raises :class:`CorruptArtefact`."""
+        """Load and verify a version against its seal; any mismatch raises
+        :class:`CorruptArtefact`."""
         version = version or self.current_version(series)
         folder = self.root / series / "versions" / version
         if not _VERSION.match(version) or not folder.is_dir():
@@ -304,13 +371,18 @@ class FileStore:
                 f"series {series!r} has no version {version!r}; versions: "
                 f"{', '.join(self.versions(series)) or 'none'}"
             )
+        sealed = (folder / SEAL).exists()
+        if sealed:
+            _verify_seal(folder, f"{series} {version}")
         try:
             manifest = json.loads((folder / "manifest.json").read_text())
         except (OSError, ValueError) as exc:
             raise CorruptArtefact(f"{series} {version}: manifest.json unreadable: {exc}") from exc
-        if manifest.get("format") != FORMAT:
+        expected = FORMAT if sealed else UNSEALED_FORMAT
+        if manifest.get("format") != expected:
             raise CorruptArtefact(
-                f"{series} {version}: format {manifest.get('format')!r}, expected {FORMAT!r}"
+                f"{series} {version}: format {manifest.get('format')!r}, expected {expected!r}"
+                + ("" if sealed else " (a version of the current format must have a SEAL)")
             )
         entry = manifest.get("files", {}).get("draws.npz")
         if entry is None:
@@ -331,7 +403,7 @@ class FileStore:
             raise CorruptArtefact(
                 f"{series} {version}: manifest does not describe the draws: {exc}"
             ) from exc
-        return StoredVersion(series, version, manifest, posterior)
+        return StoredVersion(series, version, manifest, posterior, sealed=sealed)
 
     def posterior_path(self, series: str, version: str | None = None) -> Path:
         """Path of the full ArviZ data of a version (may not exist for slim publishes)."""
@@ -344,38 +416,46 @@ class FileStore:
             raise SeriesNotFound(_unknown_series(series, self.series()))
 
 
-def _sha256(path: Path) -> str:
-    digest = hashlib.sha256()
-    with path.open("rb") as handle:
-        for block in iter(lambda: handle.read(1 << 20), b""):
-            digest.update(block)
-    return digest.hexdigest()
+def _seal_lines(folder: Path) -> dict[str, str]:
+    return {
+        path.name: sha256_of(path)
+        for path in sorted(folder.iterdir())
+        if path.is_file() and path.name != SEAL
+    }
 
 
-def _write_synced(path: Path, payload: bytes) -> None:
-    with path.open("wb") as handle:
-        handle.write(payload)
-        handle.flush()
-        os.fsync(handle.fileno())
+def _digest(files: dict[str, str]) -> str:
+    text = "".join(f"{name} {sha}\n" for name, sha in sorted(files.items()))
+    return hashlib.sha256(text.encode()).hexdigest()
 
 
-def _fsync_path(path: Path) -> None:
-    flags = os.O_RDONLY | (os.O_DIRECTORY if path.is_dir() else 0)
-    fd = os.open(path, flags)
+def _seal(folder: Path) -> bytes:
+    """The seal of a staged version: every file's SHA-256 and one digest over them."""
+    files = _seal_lines(folder)
+    body = {"format": _SEAL_FORMAT, "files": files, "digest": _digest(files)}
+    return json.dumps(body, indent=2).encode()
+
+
+def _verify_seal(folder: Path, label: str) -> None:
     try:
-        os.fsync(fd)
-    finally:
-        os.close(fd)
-
-
-def _atomic_write(path: Path, payload: bytes) -> None:
-    fd, temporary = tempfile.mkstemp(prefix=f".{path.name}.", dir=path.parent)
+        seal = json.loads((folder / SEAL).read_text())
+        listed = dict(seal["files"])
+        digest = str(seal["digest"])
+    except (OSError, ValueError, KeyError, TypeError) as exc:
+        raise CorruptArtefact(f"{label}: SEAL unreadable: {exc}") from exc
+    if _digest(listed) != digest:
+        raise CorruptArtefact(f"{label}: SEAL does not add up; it was changed or damaged")
     try:
-        with os.fdopen(fd, "wb") as handle:
-            handle.write(payload)
-            handle.flush()
-            os.fsync(handle.fileno())
-        Path(temporary).replace(path)
-    except BaseException:
-        Path(temporary).unlink(missing_ok=True)
-        raise
+        actual = _seal_lines(folder)
+    except OSError as exc:
+        raise CorruptArtefact(f"{label}: a file of the version cannot be read: {exc}") from exc
+    for name in sorted(set(listed) | set(actual)):
+        if name not in actual:
+            raise CorruptArtefact(f"{label}: {name} is listed in the seal but missing")
+        if name not in listed:
+            raise CorruptArtefact(f"{label}: {name} is not part of the sealed version")
+        if actual[name] != listed[name]:
+            raise CorruptArtefact(
+                f"{label}: {name} checksum {actual[name][:12]}... does not match the seal's "
+                f"{listed[name][:12]}...; the file was changed or damaged"
+            )

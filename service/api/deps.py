@@ -1,20 +1,30 @@
 """Dependencies shared by the routes, as ``Annotated`` aliases.
 
-Tokens are compared in constant time and never echoed, logged or put into an error body.
+Each reads what the app was created with (``app.state``): settings, registry, metrics and the
+work pool; :class:`SeriesCall` gathers what a route about one series starts from. Tokens come
+only from the ``Authorization`` header, are compared in constant time and never echoed, logged
+or put into an error body.
 """
 
 from __future__ import annotations
 
 import hmac
-from typing import Annotated
+from collections.abc import Awaitable, Callable
+from dataclasses import dataclass
+from typing import Annotated, Any
 
-from fastapi import Depends, Request
+from fastapi import APIRouter, Depends, Header, Request, Response
 from fastapi.security import HTTPAuthorizationCredentials, HTTPBearer
 from pydantic import SecretStr
 
+from models.store import StoredVersion
 from service.api.errors import ApiError
+from service.api.forecasting import served_version
+from service.api.media import version_headers, wants_csv
 from service.api.registry import Registry
+from service.api.schemas import error_responses
 from service.api.telemetry import Metrics
+from service.api.work import WorkPool
 from service.config import Settings
 
 __all__ = [
@@ -22,9 +32,13 @@ __all__ = [
     "MetricsDep",
     "ReadAccess",
     "RegistryDep",
+    "SeriesCall",
+    "SeriesCallDep",
     "SettingsDep",
+    "WorkDep",
     "require_admin",
     "require_read",
+    "series_router",
 ]
 
 _bearer = HTTPBearer(auto_error=False, description="Authorization: Bearer <token>")
@@ -35,22 +49,51 @@ Credentials = Annotated[HTTPAuthorizationCredentials | None, Depends(_bearer)]
 # dependency in a worker thread, which costs more than the whole lookup.
 
 
-async def get_settings(request: Request) -> Settings:
-    """The settings the app was created with."""
-    settings: Settings = request.app.state.settings
-    return settings
+def _app_state(name: str) -> Callable[[Request], Awaitable[Any]]:
+    """A dependency returning ``request.app.state.<name>`` (what the app was created with)."""
+
+    async def get(request: Request) -> Any:
+        return getattr(request.app.state, name)
+
+    get.__name__ = f"app_{name}"
+    return get
 
 
-async def get_registry(request: Request) -> Registry:
-    """The registry of served versions."""
-    registry: Registry = request.app.state.registry
-    return registry
+@dataclass(frozen=True)
+class SeriesCall:
+    """What every route about one series starts from, taken once at the start of the call.
+
+    ``stored`` is the version served now (the whole answer comes from it), ``csv`` whether the
+    client asked for CSV (``Accept``), ``deadline`` the event-loop time by which it must be
+    answered; ``settings`` and ``work`` are the app's.
+    """
+
+    stored: StoredVersion
+    csv: bool
+    deadline: float
+    settings: Settings
+    work: WorkPool
 
 
-async def get_metrics(request: Request) -> Metrics:
-    """The process's request metrics."""
-    metrics: Metrics = request.app.state.metrics
-    return metrics
+async def series_call(
+    series: str,
+    request: Request,
+    response: Response,
+    accept: Annotated[str | None, Header()] = None,
+) -> SeriesCall:
+    """The :class:`SeriesCall` of a request (406 or 404/422 on a bad Accept or series).
+
+    Every answer about the series carries the version it comes from in ``X-Model-Version`` and
+    whether that version is degraded (published although its fit failed the diagnostics gate)
+    in ``X-Model-Degraded``, JSON and CSV alike (:func:`~service.api.media.version_headers`).
+    """
+    state = request.app.state
+    work: WorkPool = state.work
+    deadline = work.deadline()
+    csv = wants_csv(accept)
+    stored = served_version(state.registry, series)
+    response.headers.update(version_headers(stored))
+    return SeriesCall(stored, csv, deadline, state.settings, work)
 
 
 def _configured(token: SecretStr | None) -> SecretStr | None:
@@ -65,24 +108,22 @@ def _matches(given: str, expected: SecretStr | None) -> bool:
 
 
 def _missing(kind: str) -> ApiError:
-    return ApiError(
-        401,
-        "unauthorized",
-        f"this call needs a bearer token ({kind})",
-        field="Authorization",
-        allowed=f"Authorization: Bearer <{kind} token>",
-        headers={"WWW-Authenticate": "Bearer"},
-    )
+    return _token_error(401, "unauthorized", f"this call needs a bearer token ({kind})", kind)
 
 
 def _wrong(kind: str) -> ApiError:
+    return _token_error(403, "forbidden", f"the bearer token is not a valid {kind} token", kind)
+
+
+def _token_error(status: int, code: str, message: str, kind: str) -> ApiError:
     return ApiError(
-        403,
-        "forbidden",
-        f"the bearer token is not a valid {kind} token",
+        status,
+        code,
+        message,
         field="Authorization",
-        value="(not shown)",
+        value="(not shown)" if status == 403 else None,
         allowed=f"Authorization: Bearer <{kind} token>",
+        headers={"WWW-Authenticate": "Bearer"} if status == 401 else None,
     )
 
 
@@ -119,8 +160,20 @@ async def require_admin(request: Request, credentials: Credentials) -> None:
         raise _wrong("admin")
 
 
-SettingsDep = Annotated[Settings, Depends(get_settings)]
-RegistryDep = Annotated[Registry, Depends(get_registry)]
-MetricsDep = Annotated[Metrics, Depends(get_metrics)]
+SettingsDep = Annotated[Settings, Depends(_app_state("settings"))]
+RegistryDep = Annotated[Registry, Depends(_app_state("registry"))]
+MetricsDep = Annotated[Metrics, Depends(_app_state("metrics"))]
+WorkDep = Annotated[WorkPool, Depends(_app_state("work"))]
+SeriesCallDep = Annotated[SeriesCall, Depends(series_call)]
 ReadAccess = Depends(require_read)
 AdminAccess = Depends(require_admin)
+
+
+def series_router(tag: str) -> APIRouter:
+    """A router for calls about one series (``/v1/series/{series}/...``), read token checked."""
+    return APIRouter(
+        prefix="/v1/series/{series}",
+        tags=[tag],
+        dependencies=[ReadAccess],
+        responses=error_responses(401, 403, 404, 406, 413, 422, 503),
+    )

@@ -8,22 +8,23 @@ Every error body has the same shape (:class:`service.api.schemas.ErrorResponse`)
 Mapping of the library's errors (``models.exceptions``)::
 
     InputError (TimestampError, WindowError, ...)   422 invalid_input
+    LimitError                                      422 over_limit
     SeriesNotFound                                  404 series_not_found
-    CorruptArtefact                                 503 corrupt_artefact
+    CorruptArtefact                                 503 corrupt_artefact    (paths left out)
     StoreError                                      503 store_unavailable   (details logged only)
     FitRejected                                     409 fit_rejected
     any other RatecastError / Exception             500 internal_error      (details logged only)
 
 Routes and dependencies raise :class:`ApiError` for what only the HTTP edge knows (tokens, body
 size, media types, configured limits), and wrap calls into ``models`` in :func:`field_errors` so
-an ``InputError`` names the request field it came from.
+an ``InputError`` names the request field it came from. Where an error is comes from its
+structured fields (``window``, ``field``, ``value``, ``allowed``), never from its wording.
 """
 
 from __future__ import annotations
 
 import logging
 import math
-import re
 from collections.abc import Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from typing import Any
@@ -37,18 +38,22 @@ from models.exceptions import (
     CorruptArtefact,
     FitRejected,
     InputError,
+    LimitError,
     RatecastError,
     SeriesNotFound,
     StoreError,
 )
+from service.api.redact import public_text
+from service.api.schemas.common import INSTANT_ALLOWED, INSTANT_PATTERN, STEP_PATTERN
+from service.queries.windows import STEP_ALLOWED
 
 __all__ = [
     "ApiError",
-    "error_body",
     "error_from_exception",
     "field_errors",
     "install_error_handlers",
     "problems_from_validation",
+    "validation_error",
 ]
 
 logger = logging.getLogger("ratecast.api")
@@ -56,7 +61,8 @@ logger = logging.getLogger("ratecast.api")
 _MAX_ECHO = 200  # characters of a bad value echoed back; long bodies are cut, never reflected whole
 _MAX_ITEMS = 10
 _MAX_DEPTH = 3
-_WINDOW_INDEX = re.compile(r"^window (\d+)")
+#: What a pattern of the schema means, for people (instead of the regular expression).
+_PATTERN_ALLOWED = {INSTANT_PATTERN: INSTANT_ALLOWED, STEP_PATTERN: STEP_ALLOWED}
 
 
 class ApiError(Exception):
@@ -99,38 +105,16 @@ class ApiError(Exception):
         self.problems = list(problems)
 
     def body(self) -> dict[str, Any]:
-        """The JSON error body."""
-        return error_body(
-            self.status,
-            self.code,
-            self.message,
-            field=self.field,
-            value=self.value,
-            allowed=self.allowed,
-            problems=self.problems,
-        )
-
-
-def error_body(
-    status: int,
-    code: str,
-    message: str,
-    *,
-    field: str | None = None,
-    value: Any = None,
-    allowed: str | None = None,
-    problems: Sequence[dict[str, Any]] = (),
-) -> dict[str, Any]:
-    """Build an error body of the documented shape."""
-    return {
-        "status": status,
-        "code": code,
-        "message": message,
-        "field": field,
-        "value": _echo(value),
-        "allowed": allowed,
-        "problems": list(problems),
-    }
+        """The JSON error body (:class:`service.api.schemas.ErrorResponse`)."""
+        return {
+            "status": self.status,
+            "code": self.code,
+            "message": self.message,
+            "field": self.field,
+            "value": _echo(self.value),
+            "allowed": self.allowed,
+            "problems": list(self.problems),
+        }
 
 
 def _echo(value: Any, depth: int = 0) -> Any:
@@ -162,8 +146,10 @@ def field_errors(
     """Turn an :class:`InputError` (422) or :class:`SeriesNotFound` (404) into an :class:`ApiError`.
 
     The library's message already names the bad value and what is allowed; this adds where in the
-    request it was. When the message is about window ``i`` (``"window 3 ends ..."``) and the
-    request's ``windows`` are given, the field becomes ``windows[3]`` and the value that window.
+    request it was, from the error's structured fields: an error about window ``i`` (its
+    ``window``) names ``windows[i]`` and that window when the request's ``windows`` are given; an
+    error naming its ``field`` names that field and its value; otherwise ``field`` and ``value``
+    here. The error's own ``allowed`` wins over ``allowed`` here, which is the fallback.
     """
     try:
         yield
@@ -177,14 +163,14 @@ def field_errors(
             allowed="a served series (GET /v1/series lists them)",
         ) from exc
     except InputError as exc:
-        message = str(exc)
-        where = field
-        match = _WINDOW_INDEX.match(message)
-        if match and windows is not None and int(match.group(1)) < len(windows):
-            where = f"windows[{match.group(1)}]"
-            value = windows[int(match.group(1))]
+        where, shown = field, value
+        if exc.window is not None and windows is not None and 0 <= exc.window < len(windows):
+            where, shown = f"windows[{exc.window}]", windows[exc.window]
+        elif exc.field is not None:
+            where, shown = exc.field, exc.value
+        code = "over_limit" if isinstance(exc, LimitError) else "invalid_input"
         raise ApiError(
-            422, "invalid_input", message, field=where, value=value, allowed=allowed
+            422, code, str(exc), field=where, value=shown, allowed=exc.allowed or allowed
         ) from exc
 
 
@@ -207,28 +193,60 @@ def problems_from_validation(
 ) -> list[dict[str, Any]]:
     """One problem per pydantic error: field, value received, message, what is allowed.
 
-    ``root`` names the field of an error about the whole object (an empty location).
+    ``root`` names the field of an error about the whole object (an empty location). A body
+    that is not JSON at all is a problem of the field ``body`` (pydantic locates it at the
+    character where decoding failed, which is no field).
     """
     problems = []
     for err in errors:
         kind = str(err.get("type", ""))
         message = str(err.get("msg", "invalid value"))
         allowed = message.removeprefix("Input should be ").removeprefix("Value error, ")
-        if kind == "missing":
+        where = _location(err.get("loc", ()), root)
+        if kind == "json_invalid":
+            loc = list(err.get("loc", ()))
+            at = f" at character {loc[-1]}" if loc and isinstance(loc[-1], int) else ""
+            reason = (err.get("ctx") or {}).get("error", "cannot be decoded")
+            where, value, allowed = "body", None, "a JSON document"
+            message = f"the request body is not valid JSON: {reason}{at}"
+        elif kind == "string_pattern_mismatch":
+            value = err.get("input")
+            allowed = _PATTERN_ALLOWED.get(str((err.get("ctx") or {}).get("pattern")), allowed)
+            message = f"{_echo(value)!r} does not have the allowed form: {allowed}"
+        elif kind == "missing":
             value, allowed = None, "a value (the field is required)"
         elif kind == "extra_forbidden":
             value, allowed = err.get("input"), "only the documented fields"
         else:
             value = err.get("input")
         problems.append(
-            {
-                "field": _location(err.get("loc", ()), root),
-                "value": _echo(value),
-                "message": message,
-                "allowed": allowed,
-            }
+            {"field": where, "value": _echo(value), "message": message, "allowed": allowed}
         )
     return problems
+
+
+def validation_error(errors: Sequence[Mapping[str, Any]], *, root: str = "body") -> ApiError:
+    """The 422 for pydantic validation errors: the first problem in front, all of them listed."""
+    problems = problems_from_validation(errors, root=root)
+    if not problems:
+        return ApiError(422, "invalid_input", "the request is invalid")
+    first = problems[0]
+    more = f" (and {len(problems) - 1} more)" if len(problems) > 1 else ""
+    code = (
+        "invalid_body" if first["field"] == "body" and first["value"] is None else "invalid_input"
+    )
+    message = (
+        first["message"] if code == "invalid_body" else f"{first['field']}: {first['message']}"
+    )
+    return ApiError(
+        422,
+        code,
+        message + more,
+        field=first["field"],
+        value=first["value"],
+        allowed=first["allowed"],
+        problems=problems,
+    )
 
 
 def error_from_exception(exc: BaseException) -> ApiError:
@@ -236,11 +254,15 @@ def error_from_exception(exc: BaseException) -> ApiError:
     if isinstance(exc, ApiError):
         return exc
     if isinstance(exc, InputError):
-        return ApiError(422, "invalid_input", str(exc))
+        code = "over_limit" if isinstance(exc, LimitError) else "invalid_input"
+        return ApiError(422, code, str(exc), field=exc.field, value=exc.value, allowed=exc.allowed)
     if isinstance(exc, SeriesNotFound):
         return ApiError(404, "series_not_found", str(exc), field="series")
     if isinstance(exc, CorruptArtefact):
-        return ApiError(503, "corrupt_artefact", str(exc), headers={"Retry-After": "30"})
+        logger.error("corrupt artefact: %s", exc)
+        return ApiError(
+            503, "corrupt_artefact", public_text(str(exc)), headers={"Retry-After": "30"}
+        )
     if isinstance(exc, StoreError):
         # Store messages may carry file-system paths: they go to the log, not to clients.
         logger.error("store error: %s", exc)
@@ -269,21 +291,7 @@ async def _handle_any(request: Request, exc: Exception) -> JSONResponse:
 
 async def _handle_validation(request: Request, exc: Exception) -> JSONResponse:
     assert isinstance(exc, RequestValidationError)
-    problems = problems_from_validation(exc.errors())
-    first = problems[0] if problems else {"field": None, "value": None, "allowed": None}
-    count = f" (and {len(problems) - 1} more)" if len(problems) > 1 else ""
-    message = f"{first['field']}: {problems[0]['message']}{count}" if problems else "invalid"
-    return _response(
-        ApiError(
-            422,
-            "invalid_input",
-            message,
-            field=first["field"],
-            value=first["value"],
-            allowed=first["allowed"],
-            problems=problems,
-        )
-    )
+    return _response(validation_error(exc.errors()))
 
 
 async def _handle_http(request: Request, exc: Exception) -> JSONResponse:

@@ -1,44 +1,43 @@
-"""From validated request fields to the forecast document of :mod:`service.queries.forecast`.
+"""From validated request fields to a planned answer, and the answer computed in the work pool.
 
-Nothing here predicts: times are parsed by :mod:`models.prediction.windows`, windows cut by its
-``split_range``, and the document built by :func:`service.queries.forecast.forecast_document`, exactly as the
-CLI does, so both give the same numbers. What this module adds is the edge: each failure names the
-request field, configured limits are applied before any large allocation, and large requests are
-computed off the event loop.
+Nothing here predicts: ranges are read and cut by :mod:`service.queries.windows` and documents
+built by :mod:`service.queries`, exactly as the CLI does, so both give the same numbers. What this
+module adds is the edge: each failure names the request field, configured limits and the work
+budget are applied before any work (:class:`ForecastPlan` knows its cost), and answers are
+computed in the :class:`~service.api.work.WorkPool`.
 """
 
 from __future__ import annotations
 
 import datetime as dt
-import math
-from collections.abc import Sequence
-from functools import partial
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
 from typing import Any
 
-import anyio.to_thread
 import pandas as pd
+from pydantic import BaseModel
 
-from models.prediction.windows import parse_instant, parse_step, split_range
 from models.ratemodel.binning import check_zone
 from models.store import StoredVersion
 from service.api.errors import ApiError, field_errors
 from service.api.registry import Registry
-from service.api.schemas import INSTANT_ALLOWED, WindowIn
+from service.api.schemas import INSTANT_ALLOWED, ForecastResponse, WindowIn
+from service.api.work import Job, WorkPool, range_cells, window_cells
 from service.queries.forecast import forecast_document
+from service.queries.windows import Range, parse_range, parse_time
 
 __all__ = [
-    "HEAVY_WINDOWS",
+    "ForecastPlan",
+    "Windows",
     "answer",
     "check_tz",
+    "checked",
+    "compute",
     "forecast_until",
-    "range_index",
+    "read_range",
     "served_version",
     "window_index",
 ]
-
-#: Requests with more windows than this are computed in a worker thread: the event loop stays free
-#: for health probes and small calls. Smaller ones run inline, which is measurably faster.
-HEAVY_WINDOWS = 48
 
 
 def served_version(registry: Registry, series: str) -> StoredVersion:
@@ -54,21 +53,9 @@ def check_tz(tz: str | None, *, field: str = "tz") -> None:
             check_zone(tz)
 
 
-def _instant(text: str, *, tz: str | None, field: str) -> pd.Timestamp:
-    with field_errors(field, text, allowed=INSTANT_ALLOWED):
-        stamp = parse_instant(text, tz=tz)
-    try:
-        # One zone and unit for all windows; the library compares nanosecond instants.
-        return stamp.tz_convert("UTC").as_unit("ns")
-    except (ValueError, OverflowError) as exc:
-        raise ApiError(
-            422,
-            "invalid_input",
-            f"time {text!r} is outside the range this service can represent",
-            field=field,
-            value=text,
-            allowed="dates between 1678 and 2261",
-        ) from exc
+def forecast_until(stored: StoredVersion, horizon_days: int) -> dt.date:
+    """Latest window end the service answers for (local date, exclusive)."""
+    return stored.posterior.history_end + dt.timedelta(days=horizon_days)
 
 
 def _too_many(field: str, count: int, limit: int) -> ApiError:
@@ -83,73 +70,159 @@ def _too_many(field: str, count: int, limit: int) -> ApiError:
 
 
 def window_index(
-    windows: Sequence[WindowIn], *, tz: str | None, max_windows: int
+    windows: Sequence[WindowIn], *, tz: str | None, max_windows: int, field: str = "windows"
 ) -> tuple[pd.DatetimeIndex, pd.DatetimeIndex]:
     """Starts and ends of explicit windows, each time parsed with its field named."""
     if len(windows) > max_windows:
-        raise _too_many("windows", len(windows), max_windows)
+        raise _too_many(field, len(windows), max_windows)
     check_tz(tz)
-    starts = [_instant(w.start, tz=tz, field=f"windows[{i}].start") for i, w in enumerate(windows)]
-    ends = [_instant(w.end, tz=tz, field=f"windows[{i}].end") for i, w in enumerate(windows)]
-    return pd.DatetimeIndex(starts), pd.DatetimeIndex(ends)
+    stamps: dict[str, list[pd.Timestamp]] = {"start": [], "end": []}
+    for i, window in enumerate(windows):
+        for name, text in (("start", window.start), ("end", window.end)):
+            where = f"{field}[{i}].{name}"
+            with field_errors(where, text, allowed=INSTANT_ALLOWED):
+                stamps[name].append(parse_time(text, tz=tz, field=where))
+    return pd.DatetimeIndex(stamps["start"]), pd.DatetimeIndex(stamps["end"])
 
 
-def range_index(
-    start: str, end: str, step: str | None, *, tz: str | None, max_windows: int
-) -> tuple[pd.DatetimeIndex, pd.DatetimeIndex]:
-    """Windows cutting ``[start, end)`` by ``step`` (one window if ``step`` is None)."""
+def read_range(
+    start: str | dt.datetime,
+    end: str | dt.datetime,
+    step: str | pd.Timedelta | None,
+    *,
+    tz: str | None,
+    max_windows: int,
+    steps_minutes: Sequence[int] | None = None,
+) -> Range:
+    """The range ``[start, end)`` by ``step``, checked (times, step, window count) but not cut."""
     check_tz(tz)
-    first = _instant(start, tz=tz, field="start")
-    last = _instant(end, tz=tz, field="end")
-    width = None
-    if step is not None:
-        with field_errors("step", step, allowed="a whole number of minutes, e.g. 15min, 1h, 1d"):
-            width = parse_step(step)
-        if last > first:
-            # Counted before the windows exist, so a tiny step cannot allocate millions of them.
-            count = math.ceil((last - first) / width)
-            if count > max_windows:
-                raise _too_many("step", count, max_windows)
-    with field_errors("end", end, allowed="an end after the start"):
-        return split_range(first, last, width)
+    with field_errors("end", end, allowed=INSTANT_ALLOWED):
+        span = parse_range(start, end, step, tz=tz, steps_minutes=steps_minutes)
+    return checked(span, max_windows=max_windows)
 
 
-def forecast_until(stored: StoredVersion, horizon_days: int) -> dt.date:
-    """Latest window end the service answers for (local date, exclusive)."""
-    return stored.posterior.history_end + dt.timedelta(days=horizon_days)
+def checked(span: Range, *, max_windows: int) -> Range:
+    """``span`` if it ends after it starts and gives at most ``max_windows`` windows."""
+    if span.end <= span.start:
+        with field_errors("end", span.end.isoformat()):
+            span.windows()  # raises the error naming the end
+    if span.count() > max_windows:
+        raise _too_many("step", span.count(), max_windows)
+    return span
+
+
+@dataclass(frozen=True)
+class Windows:
+    """The windows of a request: explicit ``starts``/``ends``, or a ``span`` cut when answered.
+
+    ``given`` holds the request's own windows, so an error about window ``i`` can show it.
+    """
+
+    starts: pd.DatetimeIndex | None = None
+    ends: pd.DatetimeIndex | None = None
+    span: Range | None = None
+    given: Sequence[Any] | None = None
+
+    def cells(self, stored: StoredVersion) -> int:
+        """Estimated bin-draws of answering these windows from ``stored``."""
+        bin_minutes, draws = stored.posterior.calendar.bin_minutes, stored.posterior.n_draws
+        if self.span is not None:
+            span = self.span
+            return range_cells(
+                span.start, span.end, span.step, bin_minutes=bin_minutes, draws=draws
+            )
+        assert self.starts is not None and self.ends is not None
+        return window_cells(self.starts, self.ends, bin_minutes=bin_minutes, draws=draws)
+
+    def cut(self) -> tuple[pd.DatetimeIndex, pd.DatetimeIndex]:
+        """Starts and ends (a span is cut now; its window count was checked when it was read)."""
+        if self.span is not None:
+            return self.span.windows()
+        assert self.starts is not None and self.ends is not None
+        return self.starts, self.ends
+
+
+@dataclass(frozen=True)
+class ForecastPlan:
+    """Everything needed to answer one forecast: the version, the windows, what to report."""
+
+    stored: StoredVersion
+    windows: Windows
+    levels: Sequence[float]
+    quantiles: Sequence[float]
+    at_least: Sequence[int]
+    total: bool
+
+    @classmethod
+    def of(cls, stored: StoredVersion, windows: Windows, options: Any) -> ForecastPlan:
+        """The plan for ``options`` (a request with ``levels``, ``quantiles``, ``at_least``,
+        ``total``: a forecast body, a bands query or a batch item)."""
+        return cls(
+            stored,
+            windows,
+            levels=options.levels,
+            quantiles=options.quantiles,
+            at_least=options.at_least,
+            total=options.total,
+        )
+
+    @property
+    def cells(self) -> int:
+        """Estimated bin-draws of the answer."""
+        return self.windows.cells(self.stored)
+
+    def compute(self, job: Job, *, horizon_days: int) -> BaseModel:
+        """The forecast document (as its response model); runs in the work pool."""
+        starts, ends = self.windows.cut()
+        doc = forecast_document(
+            self.stored,
+            starts,
+            ends,
+            levels=self.levels,
+            quantiles=self.quantiles,
+            at_least=self.at_least,
+            total=self.total,
+            horizon_days=horizon_days,
+        )
+        job.check()
+        return ForecastResponse.model_validate(doc)
+
+    def allowed(self, horizon_days: int) -> str:
+        """What windows this version answers, for error messages."""
+        calendar = self.stored.posterior.calendar
+        return (
+            f"windows from {calendar.first_day} to {forecast_until(self.stored, horizon_days)} "
+            f"({calendar.tz}), each ending after it starts"
+            + ("; for a total, windows that do not overlap" if self.total else "")
+        )
+
+
+async def compute(
+    pool: WorkPool,
+    work: Callable[[Job], Any],
+    *,
+    cells: int,
+    deadline: float,
+    field: str,
+    value: Any = None,
+    allowed: str | None = None,
+    windows: Sequence[Any] | None = None,
+) -> Any:
+    """Run ``work`` in ``pool``; library errors name ``field`` (or the window they are about)."""
+    with field_errors(field, value, allowed=allowed, windows=windows):
+        return await pool.run(work, cells=cells, deadline=deadline)
 
 
 async def answer(
-    stored: StoredVersion,
-    starts: pd.DatetimeIndex,
-    ends: pd.DatetimeIndex,
-    *,
-    levels: Sequence[float],
-    quantiles: Sequence[float],
-    at_least: Sequence[int],
-    total: bool,
-    horizon_days: int,
-    windows: Sequence[Any] | None = None,
-) -> dict[str, Any]:
-    """The forecast document for ``stored`` (one grabbed version) and the given windows."""
-    compute = partial(
-        forecast_document,
-        stored,
-        starts,
-        ends,
-        levels=levels,
-        quantiles=quantiles,
-        at_least=at_least,
-        total=total,
-        horizon_days=horizon_days,
+    pool: WorkPool, plan: ForecastPlan, *, horizon_days: int, deadline: float
+) -> BaseModel:
+    """The forecast for ``plan``, computed in ``pool`` after the budget admitted it."""
+    return await compute(  # type: ignore[no-any-return]
+        pool,
+        lambda job: plan.compute(job, horizon_days=horizon_days),
+        cells=plan.cells,
+        deadline=deadline,
+        field="windows",
+        allowed=plan.allowed(horizon_days),
+        windows=plan.windows.given,
     )
-    calendar = stored.posterior.calendar
-    allowed = (
-        f"windows from {calendar.first_day} to {forecast_until(stored, horizon_days)} "
-        f"({calendar.tz}), each ending after it starts"
-        + ("; for a total, windows that do not overlap" if total else "")
-    )
-    with field_errors("windows", None, allowed=allowed, windows=windows):
-        if len(starts) > HEAVY_WINDOWS:
-            return await anyio.to_thread.run_sync(compute)
-        return compute()

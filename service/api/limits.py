@@ -1,8 +1,9 @@
-"""Request body size limit, enforced before any body is parsed.
+"""Gates every request passes before a route sees it: the body size limit, no token in the URL.
 
 A declared ``Content-Length`` above the limit is refused at once; a body sent without one (chunked)
 is counted as it arrives and refused the moment it passes the limit, so a client cannot make the
-server buffer more than ``max_bytes``.
+server buffer more than ``max_bytes``. A query string carrying a credential-like parameter is
+refused before routing, so its value is never echoed in a validation error.
 """
 
 from __future__ import annotations
@@ -13,9 +14,10 @@ from starlette.exceptions import HTTPException
 from starlette.responses import JSONResponse
 
 from service.api.errors import ApiError
+from service.api.redact import credential_in_query
 from service.api.telemetry import ASGIApp, Message, Receive, Scope, Send
 
-__all__ = ["BodyLimitMiddleware", "BodyTooLarge"]
+__all__ = ["BodyLimitMiddleware", "BodyTooLarge", "QueryTokenMiddleware"]
 
 
 class BodyTooLarge(HTTPException):
@@ -100,3 +102,31 @@ async def _send_error(error: ApiError, scope: Scope, send: Send) -> None:
 
 async def _no_body() -> Any:
     return {"type": "http.disconnect"}
+
+
+class QueryTokenMiddleware:
+    """Refuse (422) a request whose query string carries a credential-like parameter.
+
+    The value is neither echoed nor logged by the service; :class:`AccessLogRedactor` removes it
+    from the server's access log line.
+    """
+
+    def __init__(self, app: ASGIApp) -> None:
+        self.app = app
+
+    async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
+        if scope["type"] == "http":
+            name = credential_in_query(scope.get("query_string", b"").decode("latin-1"))
+            if name is not None:
+                error = ApiError(
+                    422,
+                    "token_in_query",
+                    f"query parameter {name!r} looks like a credential; tokens are accepted "
+                    "only in the Authorization header",
+                    field=name,
+                    value="(not shown)",
+                    allowed="Authorization: Bearer <token>, and no credential in the URL",
+                )
+                await JSONResponse(error.body(), status_code=422)(scope, receive, send)
+                return
+        await self.app(scope, receive, send)

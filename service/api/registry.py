@@ -8,6 +8,9 @@ A version that fails to load (checksum mismatch, unreadable files) is *refused*:
 served keeps serving, the refusal is logged once and listed in health and metrics. When no version
 of a series is held yet (a fresh process), the newest older version that loads is served instead,
 so every worker of a deployment agrees on what a refused series answers with.
+
+Refusal reasons and store errors are written for clients: no file-system paths (the log keeps
+the full text).
 """
 
 from __future__ import annotations
@@ -22,6 +25,7 @@ from types import MappingProxyType
 
 from models.exceptions import RatecastError, SeriesNotFound
 from models.store import PosteriorStore, StoredVersion, check_series_name
+from service.api.redact import public_text
 
 __all__ = ["LoadedVersion", "Refusal", "Registry", "ReloadReport", "watch"]
 
@@ -36,7 +40,10 @@ def _now() -> str:
 
 @dataclass(frozen=True)
 class Refusal:
-    """A version that was not loaded, and why."""
+    """A version the service would not load; the previous one (if any) keeps serving.
+
+    ``reason`` is short and names no server path; ``at`` is when (UTC, ISO 8601).
+    """
 
     series: str
     version: str | None
@@ -46,7 +53,7 @@ class Refusal:
 
 @dataclass(frozen=True)
 class LoadedVersion:
-    """A series whose served version changed."""
+    """A series whose served version changed in a reload."""
 
     series: str
     version: str
@@ -55,7 +62,7 @@ class LoadedVersion:
 
 @dataclass(frozen=True)
 class ReloadReport:
-    """Outcome of one :meth:`Registry.reload`."""
+    """What a reload changed (the body of ``POST /v1/admin/reload``)."""
 
     loaded: list[LoadedVersion] = field(default_factory=list)
     unchanged: int = 0
@@ -119,11 +126,12 @@ class Registry:
         return sorted(self._refused.values(), key=lambda r: r.series)
 
     def check_store(self) -> str | None:
-        """``None`` if the store can be listed now, else why not."""
+        """``None`` if the store can be listed now, else why not (in a few words, no path)."""
         try:
             self.store.series()
         except (OSError, RatecastError) as exc:
-            return f"store cannot be listed: {type(exc).__name__}"
+            logger.error("store cannot be listed: %s", exc)
+            return _store_problem(exc)
         return None
 
     # ------------------------------------------------------------------ reloading
@@ -152,7 +160,7 @@ class Registry:
         try:
             names = self.store.series()
         except (OSError, RatecastError) as exc:
-            self.store_error = f"store cannot be listed: {type(exc).__name__}"
+            self.store_error = _store_problem(exc)
             logger.error("reload: %s (%s); keeping what is served", self.store_error, exc)
             return ReloadReport(store_error=self.store_error)
         self.store_error = None
@@ -241,15 +249,25 @@ class Registry:
         report: ReloadReport,
         refused: dict[str, Refusal],
     ) -> None:
-        refusal = Refusal(name, version, f"{type(exc).__name__}: {exc}", _now())
+        refusal = Refusal(name, version, public_text(str(exc)) or type(exc).__name__, _now())
         refused[name] = refusal
         report.refused.append(refusal)
         logger.warning(
-            "refused %s %s: %s; the previous version keeps serving",
+            "refused %s %s: %s: %s; the previous version keeps serving",
             name,
             version or "(current)",
-            refusal.reason,
+            type(exc).__name__,
+            exc,
         )
+
+
+def _store_problem(exc: BaseException) -> str:
+    """Why the store cannot be listed, for clients: the kind of failure, not its details."""
+    if isinstance(exc, FileNotFoundError):
+        return "the store folder is missing"
+    if isinstance(exc, PermissionError):
+        return "the store folder cannot be read (permission denied)"
+    return "the store cannot be listed (details in the server log)"
 
 
 async def watch(registry: Registry, every: float) -> None:

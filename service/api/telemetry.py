@@ -13,6 +13,7 @@ from collections.abc import Awaitable, Callable, MutableMapping
 from typing import Any
 
 from service.api.registry import Registry
+from service.api.work import WorkPool
 
 __all__ = ["LATENCY_BUCKETS", "Metrics", "MetricsMiddleware", "render"]
 
@@ -74,8 +75,8 @@ def _number(value: float) -> str:
     return repr(float(value)) if not float(value).is_integer() else str(int(value))
 
 
-def render(metrics: Metrics, registry: Registry) -> str:
-    """The exposition text: HTTP metrics, then what the registry serves and refuses."""
+def render(metrics: Metrics, registry: Registry, work: WorkPool) -> str:
+    """The exposition text: HTTP metrics, what the registry serves and refuses, the work pool."""
     out: list[str] = [
         "# HELP ratecast_http_requests_total HTTP requests answered, by method, route and status.",
         "# TYPE ratecast_http_requests_total counter",
@@ -124,7 +125,39 @@ def render(metrics: Metrics, registry: Registry) -> str:
         "# TYPE ratecast_store_readable gauge",
         f"ratecast_store_readable {0 if registry.store_error else 1}",
     ]
-    return "\n".join(out) + "\n"
+    return "\n".join(out + _work_lines(work)) + "\n"
+
+
+def _work_lines(work: WorkPool) -> list[str]:
+    out = [
+        "# HELP ratecast_work_started_total Answers whose computation began (inline or pooled).",
+        "# TYPE ratecast_work_started_total counter",
+        f"ratecast_work_started_total {work.started}",
+        "# HELP ratecast_work_cells_total Estimated bin-draws of the answers begun.",
+        "# TYPE ratecast_work_cells_total counter",
+        f"ratecast_work_cells_total {work.started_cells}",
+        "# HELP ratecast_work_running Answers being computed in the work threads now.",
+        "# TYPE ratecast_work_running gauge",
+        f"ratecast_work_running {work.running}",
+        "# HELP ratecast_work_waiting Answers waiting for a work thread now.",
+        "# TYPE ratecast_work_waiting gauge",
+        f"ratecast_work_waiting {max(0, work.pending - work.running)}",
+        "# HELP ratecast_work_refused_total Requests refused before any work, by reason.",
+        "# TYPE ratecast_work_refused_total counter",
+    ]
+    out += [
+        f"ratecast_work_refused_total{_labels(reason=k)} {v}"
+        for k, v in sorted(work.refused.items())
+    ]
+    out += [
+        "# HELP ratecast_work_abandoned_total Answers abandoned unfinished, by reason.",
+        "# TYPE ratecast_work_abandoned_total counter",
+    ]
+    out += [
+        f"ratecast_work_abandoned_total{_labels(reason=k)} {v}"
+        for k, v in sorted(work.abandoned.items())
+    ]
+    return out
 
 
 class MetricsMiddleware:

@@ -8,18 +8,22 @@ baselines on the same windows, and writes per-origin results (resumable), ``metr
 from __future__ import annotations
 
 import argparse
-import datetime as dt
 import sys
 from pathlib import Path
 from typing import Any
 
 from models.exceptions import InputError
 from service.cli.common import (
+    OPEN_HELP,
     add_model_options,
     add_sampling_options,
+    fit_progress,
     holiday_calendar,
     model_spec,
     number_list,
+    parse_date,
+    progress_bar_wanted,
+    quiet_arviz_nan_note,
     read_history,
     sampling_options,
 )
@@ -43,8 +47,12 @@ def register(sub: Any) -> None:
     src.add_argument("--counts", help="CSV/Parquet file with columns start,count")
     p.add_argument("--tz", required=True, help="IANA time zone of the series, e.g. America/Chicago")
     p.add_argument("--time-column", default="timestamp", help="arrival time column (events)")
-    p.add_argument("--bin", default=None, help="bin width: 15min, 30min, 1h or 1d")
-    p.add_argument("--open", dest="opening", default=None, help="opening hours, as for fit")
+    p.add_argument(
+        "--bin",
+        default=None,
+        help="bin width: 15min, 30min, 1h or 1d (default: 1h for events, inferred for counts)",
+    )
+    p.add_argument("--open", dest="opening", default=None, help=OPEN_HELP)
     p.add_argument("--holidays", default=None, help="COUNTRY or COUNTRY:SUBDIVISION, e.g. NZ:AUK")
     p.add_argument("--first-origin", required=True, help="first origin date, YYYY-MM-DD (local)")
     p.add_argument("--last-origin", required=True, help="last origin date, YYYY-MM-DD (local)")
@@ -52,14 +60,19 @@ def register(sub: Any) -> None:
     p.add_argument("--horizon", type=int, default=7, help="days forecast after each origin")
     p.add_argument("--lead-bands", default=None, help="report bands, e.g. 1,7 (default: 1,HORIZON)")
     p.add_argument("--refit-every", type=int, default=1, help="refit at every n-th origin")
-    p.add_argument("--history-days", type=int, default=None, help="fit on the last N days only")
+    p.add_argument(
+        "--history-days",
+        type=int,
+        default=None,
+        help="fit on the last N days only (default: all the history before the origin)",
+    )
     p.add_argument("--levels", default="0.5,0.8,0.95", help="interval levels to score")
     p.add_argument("--baseline-weeks", type=int, default=4, help="weeks in the weekday mean")
     add_model_options(p)
     add_sampling_options(p)
     p.add_argument("--results", required=True, help="folder for per-origin results (resumable)")
     p.add_argument("--report", default=None, help="folder for the report (default RESULTS/report)")
-    p.add_argument("--title", default=None, help="report title")
+    p.add_argument("--title", default=None, help="report title (default: Backtest of FILE)")
     p.set_defaults(run=_run)
 
 
@@ -73,8 +86,8 @@ def _run(args: argparse.Namespace) -> int:
     holidays = holiday_calendar(args.holidays)
     origins = make_origins(
         binned,
-        first=_date(args.first_origin, "--first-origin"),
-        last=_date(args.last_origin, "--last-origin"),
+        first=parse_date(args.first_origin, option="--first-origin"),
+        last=parse_date(args.last_origin, option="--last-origin"),
         every_days=args.every,
     )
     levels = _numbers(args.levels, "--levels", float)
@@ -97,14 +110,18 @@ def _run(args: argparse.Namespace) -> int:
         "(about a minute each; finished origins in --results are not redone)",
         file=sys.stderr,
     )
-    records = run_backtest(
-        binned,
-        fitter,
-        config,
-        results_dir=args.results,
-        holidays=holidays,
-        progress=not args.no_progress,
-    )
+    import models.fitting.sampling  # noqa: F401  (the sampler loads anyway; quiet its notes now)
+
+    quiet_arviz_nan_note()
+    with fit_progress(args, "backtest"):
+        records = run_backtest(
+            binned,
+            fitter,
+            config,
+            results_dir=args.results,
+            holidays=holidays,
+            progress=progress_bar_wanted(args),
+        )
     report = Path(args.report) if args.report else Path(args.results) / "report"
     metrics = write_report(
         records,
@@ -127,13 +144,6 @@ def _run(args: argparse.Namespace) -> int:
     print(f"report: {report / 'report.md'}")
     print(CAUTION)
     return 0
-
-
-def _date(text: str, option: str) -> dt.date:
-    try:
-        return dt.date.fromisoformat(text)
-    except ValueError as exc:
-        raise InputError(f"{option} {text!r} is not a date like 2024-03-04") from exc
 
 
 def _numbers(text: str, option: str, kind: Any) -> tuple[Any, ...]:

@@ -7,15 +7,10 @@ HTTP API. Every staffing output carries :data:`models.capacity.staffing.STAFFING
 from __future__ import annotations
 
 import argparse
-import csv
-import datetime as dt
-import io
-import json
-import sys
+from functools import partial
 from typing import Any
 
 import numpy as np
-import pandas as pd
 
 from models.capacity.staffing import (
     STAFFING_CAUTION,
@@ -24,19 +19,29 @@ from models.capacity.staffing import (
 from models.exceptions import InputError
 from models.prediction.windows import (
     parse_instant,
-    parse_step,
-    split_range,
 )
-from service.cli.common import grid, number_list, store_from_args
+from service.cli.common import (
+    STORE_HELP,
+    add_degraded_option,
+    check_degraded,
+    emit,
+    grid,
+    named_file_errors,
+    number_list,
+    store_from_args,
+    window_label,
+)
 from service.queries.capacity import (
     plan_windows,
     read_observed,
+    staffing_csv,
     staffing_document,
+    update_csv,
     update_document,
+    update_range,
 )
-from service.queries.forecast import flat_row
 
-__all__ = ["register", "staffing_csv", "staffing_table", "update_csv", "update_table"]
+__all__ = ["register", "staffing_table", "update_table"]
 
 # ----------------------------------------------------------------------------- rendering
 
@@ -45,24 +50,19 @@ def _pct(value: float) -> str:
     return f"{100.0 * value:.1f}%"
 
 
-def _span(start: str, end: str) -> str:
-    a, b = pd.Timestamp(start), pd.Timestamp(end)
-    return f"{a.strftime('%a %Y-%m-%d %H:%M')}-{b.strftime('%H:%M')}"
-
-
 def staffing_table(doc: dict[str, Any]) -> str:
     """Fixed-width tables (intervals, then days) with the caution underneath."""
     p = doc["meet_probability"]
     given = "given" in doc["intervals"][0]
     headers = ["interval", "mean", f"q{p:g}", "erlangs", "N mean", "E[SL]", "P(miss)"]
-    headers += [f"N p{p:g}", "E[SL]", "P(miss)", "paid mean", f"paid p{p:g}"]
+    headers += [f"N p{p:g}", "E[SL]", "P(miss)", "scheduled mean", f"scheduled p{p:g}"]
     if given:
         headers += ["N given", "E[SL]", "P(miss)"]
     body = []
     for row in doc["intervals"]:
         plug, sure = row["plug_in"], row["assured"]
         cells = [
-            _span(row["start"], row["end"]),
+            window_label(row["start"], row["end"], doc["tz"]),
             f"{row['mean_arrivals']:.1f}",
             str(row["quantile_arrivals"]),
             f"{row['mean_load_erlangs']:.2f}",
@@ -102,8 +102,8 @@ def staffing_table(doc: dict[str, Any]) -> str:
                 "mean arrivals",
                 "agent-h mean",
                 f"agent-h p{p:g}",
-                "paid-h mean",
-                f"paid-h p{p:g}",
+                "scheduled-h mean",
+                f"scheduled-h p{p:g}",
             ],
             [
                 [
@@ -119,36 +119,12 @@ def staffing_table(doc: dict[str, Any]) -> str:
         ),
         "",
         f"N mean: {doc['definitions']['plug_in']}. N p{p:g}: {doc['definitions']['assured']}.",
-        f"P(miss): {doc['definitions']['miss_probability']}. Paid: "
+        f"P(miss): {doc['definitions']['miss_probability']}. Scheduled: "
         f"{doc['definitions']['scheduled']}.",
         "",
         f"CAUTION: {doc['caution']}",
     ]
     return "\n".join(lines) + "\n"
-
-
-def staffing_csv(doc: dict[str, Any]) -> str:
-    """One flat row per interval; the caution is the last line, as a comment."""
-    rows = []
-    for row in doc["intervals"]:
-        flat: dict[str, Any] = {
-            "start": row["start"],
-            "end": row["end"],
-            "mean_arrivals": round(row["mean_arrivals"], 3),
-            "quantile_arrivals": row["quantile_arrivals"],
-            "mean_load_erlangs": round(row["mean_load_erlangs"], 4),
-        }
-        for policy in ("plug_in", "assured", "given"):
-            if policy in row:
-                for key, value in row[policy].items():
-                    flat[f"{policy}_{key}"] = round(value, 6) if isinstance(value, float) else value
-        rows.append(flat)
-    buffer = io.StringIO()
-    writer = csv.DictWriter(buffer, fieldnames=list(rows[0]))
-    writer.writeheader()
-    writer.writerows(rows)
-    buffer.write(f"# {doc['caution']}\n")
-    return buffer.getvalue()
 
 
 def update_table(doc: dict[str, Any]) -> str:
@@ -160,7 +136,7 @@ def update_table(doc: dict[str, Any]) -> str:
     body = []
     for row in doc["windows"]:
         cells = [
-            _span(row["start"], row["end"]),
+            window_label(row["start"], row["end"], doc["tz"]),
             f"{row['before']['mean']:.1f}",
             f"{row['mean']:.1f}",
             f"{row['sd']:.1f}",
@@ -186,25 +162,17 @@ def update_table(doc: dict[str, Any]) -> str:
     return "\n".join(lines) + "\n"
 
 
-def update_csv(doc: dict[str, Any]) -> str:
-    """One flat row per window, with the mean before the update."""
-    rows = [{**flat_row(r), "before_mean": round(r["before"]["mean"], 3)} for r in doc["windows"]]
-    buffer = io.StringIO()
-    writer = csv.DictWriter(buffer, fieldnames=list(rows[0]))
-    writer.writeheader()
-    writer.writerows(rows)
-    return buffer.getvalue()
-
-
 # ----------------------------------------------------------------------------- commands
+
+_START_HELP = (
+    "ISO 8601 date or date-time, e.g. 2026-04-27T08:00; local time of the series without an offset"
+)
 
 
 def _common(p: argparse.ArgumentParser) -> None:
-    p.add_argument("--series", required=True)
-    p.add_argument("--version", default=None, help="a stored version (default: current)")
-    p.add_argument(
-        "--store", default=None, help="store folder (default $RATECAST_STORE or ./store)"
-    )
+    p.add_argument("--series", required=True, help="a published series (see ratecast series)")
+    p.add_argument("--version", default=None, help="a stored version (default: the current one)")
+    p.add_argument("--store", default=None, help=STORE_HELP)
 
 
 def _add_staff(sub: Any) -> None:
@@ -214,14 +182,21 @@ def _add_staff(sub: Any) -> None:
         epilog=STAFFING_CAUTION,
     )
     _common(p)
-    p.add_argument("--start", required=True, help="ISO 8601; local time of the series if no offset")
-    p.add_argument("--end", required=True, help="ISO 8601 (exclusive)")
+    p.add_argument("--start", required=True, help=_START_HELP)
+    p.add_argument("--end", required=True, help="ISO 8601, as --start (exclusive)")
     p.add_argument("--step", default="30min", help="plan interval: 15min, 30min or 1h")
     p.add_argument("--handle-time", type=float, required=True, help="mean handle time, seconds")
     p.add_argument("--answer-within", type=float, required=True, help="target answer time, seconds")
     p.add_argument("--target", type=float, required=True, help="share answered in time, e.g. 0.8")
-    p.add_argument("--patience", type=float, default=None, help="mean patience, seconds (Erlang A)")
-    p.add_argument("--shrinkage", type=float, default=0.0, help="share of paid time off the queue")
+    p.add_argument(
+        "--patience",
+        type=float,
+        default=None,
+        help="mean patience, seconds, for Erlang A (default: none, Erlang C: nobody hangs up)",
+    )
+    p.add_argument(
+        "--shrinkage", type=float, default=0.0, help="share of scheduled time off the queue"
+    )
     p.add_argument(
         "--meet-probability",
         type=float,
@@ -232,14 +207,18 @@ def _add_staff(sub: Any) -> None:
         "--min-agents", type=int, default=1, help="floor for intervals that can get calls"
     )
     p.add_argument(
-        "--agents", default=None, help="a staffing to evaluate: one number, or one per interval"
+        "--agents",
+        default=None,
+        help="a staffing to evaluate: one number, or one per interval (default: none)",
     )
-    p.add_argument("--format", choices=("table", "json", "csv"), default="table")
+    p.add_argument("--format", choices=("table", "json", "csv"), default="table", help="output")
+    add_degraded_option(p)
     p.set_defaults(run=_run_staff)
 
 
 def _run_staff(args: argparse.Namespace) -> int:
     stored = store_from_args(args).load(args.series, args.version)
+    check_degraded(args, stored)
     tz = stored.posterior.calendar.tz
     starts, ends = plan_windows(args.start, args.end, step=args.step, tz=tz)
     target = ServiceTarget(
@@ -259,13 +238,21 @@ def _run_staff(args: argparse.Namespace) -> int:
         min_agents=args.min_agents,
         agents=agents,
     )
-    if args.format == "json":
-        print(json.dumps(doc, indent=2))
-    elif args.format == "csv":
-        sys.stdout.write(staffing_csv(doc))
-    else:
-        sys.stdout.write(staffing_table(doc))
-    return 0
+    return emit(
+        doc, args.format, csv=partial(staffing_csv, caution_column=True), table=staffing_table
+    )
+
+
+def _observed(path: str, *, tz: str, bin_minutes: int) -> tuple[Any, Any, Any]:
+    """Today's observed counts: the file is checked first so that every problem names it and
+    its line (the shared reader then takes the checked rows)."""
+    from models.ratemodel.binning import check_counts, read_table
+
+    table = read_table(path)
+    with named_file_errors(path):
+        if "count" in table.columns:
+            check_counts(table["count"], column="count")
+        return read_observed(path, tz=tz, bin_minutes=bin_minutes)
 
 
 def _add_update(sub: Any) -> None:
@@ -284,25 +271,28 @@ def _add_update(sub: Any) -> None:
     p.add_argument("--levels", default="0.8,0.95", help="central interval levels")
     p.add_argument("--quantiles", default="", help="quantile levels, e.g. 0.5,0.9")
     p.add_argument("--seed", type=int, default=None, help="seed (default: the version's own)")
-    p.add_argument("--format", choices=("table", "json", "csv"), default="table")
+    p.add_argument("--format", choices=("table", "json", "csv"), default="table", help="output")
+    add_degraded_option(p)
     p.set_defaults(run=_run_update)
 
 
 def _run_update(args: argparse.Namespace) -> int:
     stored = store_from_args(args).load(args.series, args.version)
+    check_degraded(args, stored)
     calendar = stored.posterior.calendar
     tz = calendar.tz
-    o_starts, o_ends, counts = read_observed(args.observed, tz=tz, bin_minutes=calendar.bin_minutes)
+    o_starts, o_ends, counts = _observed(args.observed, tz=tz, bin_minutes=calendar.bin_minutes)
     if len(o_ends) == 0:
         raise InputError(f"observed-counts file {args.observed} has no rows")
-    start = parse_instant(args.start, tz=tz) if args.start else o_ends.max().tz_convert(tz)
-    if args.end:
-        end = parse_instant(args.end, tz=tz)
-    else:
-        next_day = start.tz_convert(tz).date() + dt.timedelta(days=1)
-        end = pd.Timestamp(next_day).tz_localize(tz, nonexistent="shift_forward", ambiguous=True)
-    step = parse_step(args.step) if args.step else pd.Timedelta(minutes=calendar.bin_minutes)
-    starts, ends = split_range(start, end, step)
+    starts, ends = update_range(
+        args.start,
+        args.end,
+        args.step,
+        observed_ends=o_ends,
+        tz=tz,
+        zone=tz,
+        bin_minutes=calendar.bin_minutes,
+    ).windows()
     doc = update_document(
         stored,
         o_starts,
@@ -314,13 +304,7 @@ def _run_update(args: argparse.Namespace) -> int:
         quantiles=number_list(args.quantiles, option="--quantiles"),
         seed=args.seed,
     )
-    if args.format == "json":
-        print(json.dumps(doc, indent=2))
-    elif args.format == "csv":
-        sys.stdout.write(update_csv(doc))
-    else:
-        sys.stdout.write(update_table(doc))
-    return 0
+    return emit(doc, args.format, csv=update_csv, table=update_table)
 
 
 def _add_simulate(sub: Any) -> None:
@@ -328,11 +312,12 @@ def _add_simulate(sub: Any) -> None:
         "simulate", help="sample arrival times from the posterior process (CSV or Parquet)"
     )
     _common(p)
-    p.add_argument("--start", required=True, help="ISO 8601; local time of the series if no offset")
-    p.add_argument("--end", required=True, help="ISO 8601 (exclusive)")
+    p.add_argument("--start", required=True, help=_START_HELP)
+    p.add_argument("--end", required=True, help="ISO 8601, as --start (exclusive)")
     p.add_argument("--replicates", type=int, default=1, help="independent streams to sample")
     p.add_argument("--seed", type=int, default=None, help="seed (default: the version's own)")
     p.add_argument("--out", required=True, help="output file ending in .csv or .parquet")
+    add_degraded_option(p)
     p.set_defaults(run=_run_simulate)
 
 
@@ -340,6 +325,7 @@ def _run_simulate(args: argparse.Namespace) -> int:
     from models.prediction.simulate import simulate_arrivals, write_arrivals
 
     stored = store_from_args(args).load(args.series, args.version)
+    check_degraded(args, stored)
     tz = stored.posterior.calendar.tz
     start, end = parse_instant(args.start, tz=tz), parse_instant(args.end, tz=tz)
     arrivals = simulate_arrivals(

@@ -1,24 +1,59 @@
-"""Pieces every CLI command module shares: the store, number lists, history files, tables."""
+"""Pieces every CLI command module shares: the store, number lists, history files, labels, help
+that states defaults, and quiet, line-by-line progress for fits."""
 
 from __future__ import annotations
 
 import argparse
 import datetime as dt
+import json
+import logging
+import os
+import sys
+import threading
+import time
+import warnings
+from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
-from typing import Any
+from typing import Any, TextIO
+from zoneinfo import ZoneInfo
 
-from models.exceptions import InputError
+from models.exceptions import DegradedVersion, InputError, StoreError
 from models.fitting.options import FitOptions
+from service.history import (
+    holiday_calendar,
+    named_file_errors,
+    parse_date,
+    read_history_file,
+)
 
 __all__ = [
+    "DefaultsHelpFormatter",
+    "add_degraded_option",
     "add_model_options",
+    "check_degraded",
+    "emit",
     "grid",
     "holiday_calendar",
     "model_spec",
+    "named_file_errors",
     "number_list",
+    "parse_date",
+    "progress_lines",
+    "quiet_library_warnings",
     "read_history",
     "store_from_args",
+    "window_label",
 ]
+
+#: Help text of every ``--store`` option.
+STORE_HELP = "store folder (default $RATECAST_STORE, else ./store)"
+#: Help text of every ``--open`` option: the syntax of opening hours, overnight and always-open.
+OPEN_HELP = (
+    "opening hours, e.g. 'Mon-Fri 07:00-21:00; Sat 09:00-13:00'. A span closing before it opens "
+    "runs overnight ('Mon-Fri 18:00-08:00' closes at 08:00 the next morning); 'always' keeps "
+    "every hour open (default: always open)"
+)
 
 #: Count law of ``ratecast fit`` and ``ratecast backtest`` unless told otherwise: measured on real
 #: hourly series, Poisson intervals covered 0.28-0.48 at the 80% level and negative binomial ones
@@ -70,12 +105,36 @@ def model_spec(args: argparse.Namespace, *, bin_minutes: int, holidays: Any) -> 
     )
 
 
-def store_from_args(args: argparse.Namespace) -> Any:
-    """The file store named by ``--store``, else ``$RATECAST_STORE``, else ``./store``."""
+def store_from_args(args: argparse.Namespace, *, create: bool = False) -> Any:
+    """The file store named by ``--store``, else ``$RATECAST_STORE``, else ``./store``.
+
+    A folder that does not exist is refused naming it (and where the name came from), unless
+    ``create`` (a fit publishes into a new store).
+    """
     from models.store import FileStore
     from service.config import get_settings
 
-    return FileStore(Path(args.store) if getattr(args, "store", None) else get_settings().store)
+    if getattr(args, "store", None):
+        root, source = Path(args.store), "--store"
+    else:
+        root = get_settings().store
+        source = "$RATECAST_STORE" if os.environ.get("RATECAST_STORE") else "the default ./store"
+    from models.ratemodel.binning import shown_path
+
+    try:
+        exists, folder = root.exists(), root.is_dir()
+    except OSError as exc:
+        raise StoreError(
+            f"store folder {shown_path(root)} ({source}) cannot be opened: {exc.strerror}"
+        ) from exc
+    if exists and not folder:
+        raise StoreError(f"store {shown_path(root)} ({source}) is a file; give the store folder")
+    if not exists and not create:
+        raise StoreError(
+            f"store folder {shown_path(root)} ({source}) does not exist; give the folder a fit "
+            "published to (--store or $RATECAST_STORE), or run ratecast fit first"
+        )
+    return FileStore(root)
 
 
 def number_list(text: str, *, option: str, kind: type = float) -> tuple[Any, ...]:
@@ -90,49 +149,59 @@ def number_list(text: str, *, option: str, kind: type = float) -> tuple[Any, ...
         ) from exc
 
 
-def holiday_calendar(holidays: str | None, special_days: str | None = None) -> Any:
-    """The calendar of ``COUNTRY[:SUBDIVISION]`` plus ``YYYY-MM-DD,...`` extra dates, or None."""
-    from models.ratemodel.spec import HolidayCalendar
-
-    if not (holidays or special_days):
-        return None
-    country, _, subdivision = (holidays or "").partition(":")
-    extra: tuple[dt.date, ...] = ()
-    if special_days:
-        try:
-            extra = tuple(dt.date.fromisoformat(d.strip()) for d in special_days.split(","))
-        except ValueError as exc:
-            raise InputError(
-                f"--special-days {special_days!r} must be YYYY-MM-DD dates separated by commas"
-            ) from exc
-    return HolidayCalendar(
-        country=country.upper() or None, subdivision=subdivision.upper() or None, extra=extra
+def read_history(
+    args: argparse.Namespace, *, opening: Any, until: Any = None, now: Any = None
+) -> Any:
+    """Bin a command's ``--events`` or ``--counts`` file (:func:`~service.history.read_history_file`)."""
+    return read_history_file(
+        args.events or args.counts,
+        kind="counts" if args.counts else "events",
+        tz=args.tz,
+        bin=args.bin,
+        time_column=getattr(args, "time_column", "timestamp"),
+        opening=opening,
+        until=until,
+        now=now,
     )
 
 
-def read_history(args: argparse.Namespace, *, opening: Any, until: Any = None) -> Any:
-    """Bin ``--events`` (column ``--time-column``) or ``--counts`` into a BinnedSeries."""
-    from models.ratemodel.binning import (
-        bin_counts,
-        bin_events,
-        parse_bin_width,
-        parse_timestamps,
-        read_table,
+def emit(doc: Any, fmt: str, *, csv: Any, table: Any) -> int:
+    """Write a command's document as ``fmt``: ``json``, ``csv`` (via ``csv(doc)``) or the table
+    for people (``table(doc)``, under a warning when the version is degraded); returns 0."""
+    if fmt == "json":
+        print(json.dumps(doc, indent=2))
+    elif fmt == "csv":
+        sys.stdout.write(csv(doc))
+    else:
+        if doc.get("degraded"):
+            print(
+                f"WARNING: {doc['series']} {doc['model_version']} is DEGRADED: it was published "
+                "with --force although its fit failed the diagnostics gate; do not plan on it "
+                "(refit it, or pass --refuse-degraded in pipelines)."
+            )
+        sys.stdout.write(table(doc))
+    return 0
+
+
+def add_degraded_option(p: argparse.ArgumentParser) -> None:
+    """``--refuse-degraded``: fail (exit 6) instead of answering from a degraded version."""
+    p.add_argument(
+        "--refuse-degraded",
+        action="store_true",
+        help="exit with status 6 instead of answering when the version was published with "
+        "--force although its fit failed the diagnostics gate (for pipelines)",
     )
 
-    bin_minutes = parse_bin_width(args.bin) if args.bin else None
-    table = read_table(args.events or args.counts)
-    if args.counts:
-        return bin_counts(table, tz=args.tz, bin_minutes=bin_minutes, opening=opening)
-    if args.time_column not in table.columns:
-        raise InputError(
-            f"events file has no column {args.time_column!r}; columns: "
-            f"{', '.join(map(str, table.columns))} (choose one with --time-column)"
+
+def check_degraded(args: argparse.Namespace, stored: Any) -> None:
+    """Raise :class:`~models.exceptions.DegradedVersion` if ``--refuse-degraded`` was given and
+    ``stored`` is degraded."""
+    if getattr(args, "refuse_degraded", False) and stored.degraded:
+        problems = "; ".join(stored.degraded_problems[:3]) or "the gate's report is not stored"
+        raise DegradedVersion(
+            f"{stored.series} {stored.version} is degraded (published with --force although its "
+            f"fit failed the diagnostics gate: {problems}); refusing it as --refuse-degraded asks"
         )
-    stamps = parse_timestamps(table[args.time_column], tz=args.tz, column=args.time_column)
-    return bin_events(
-        stamps, tz=args.tz, bin_minutes=bin_minutes or 60, opening=opening, until=until
-    )
 
 
 def grid(headers: list[str], body: list[list[str]]) -> list[str]:
@@ -146,6 +215,145 @@ def grid(headers: list[str], body: list[list[str]]) -> list[str]:
         )
 
     return [line(headers), *(line(cells) for cells in body)]
+
+
+def _repeated(wall: dt.datetime, zone: ZoneInfo) -> bool:
+    """Whether the local wall-clock time ``wall`` occurs twice (the hour daylight saving repeats)."""
+    first = wall.replace(tzinfo=zone, fold=0).utcoffset()
+    second = wall.replace(tzinfo=zone, fold=1).utcoffset()
+    return first != second
+
+
+def _clock(stamp: Any, zone: ZoneInfo, *, midnight_as_24: bool = False) -> str:
+    """``HH:MM``, with the UTC offset added when the wall-clock time is one daylight saving
+    repeats, e.g. ``01:00 (UTC-05:00)``."""
+    if midnight_as_24 and stamp.hour == 0 and stamp.minute == 0:
+        return "24:00"
+    text = stamp.strftime("%H:%M")
+    if _repeated(stamp.to_pydatetime().replace(tzinfo=None), zone):
+        offset = stamp.strftime("%z")
+        text += f" (UTC{offset[:3]}:{offset[3:]})"
+    return text
+
+
+def window_label(start: str, end: str, tz: str) -> str:
+    """A window ``[start, end)`` for people, in the series' zone.
+
+    A window of whole local days is named by its dates; one within a day by the day and its
+    times (the following midnight is ``24:00``); a time daylight saving repeats carries its UTC
+    offset so the two hours are told apart.
+
+    Examples
+    --------
+    >>> window_label("2026-04-27T06:00-03:00", "2026-04-27T06:30-03:00", "America/Halifax")
+    'Mon 2026-04-27 06:00-06:30'
+    >>> window_label("2026-04-27T00:00-03:00", "2026-04-28T00:00-03:00", "America/Halifax")
+    'Mon 2026-04-27'
+    >>> window_label("2026-11-01T01:00-05:00", "2026-11-01T01:00-06:00", "America/Chicago")
+    'Sun 2026-11-01 01:00 (UTC-05:00)-01:00 (UTC-06:00)'
+    """
+    import pandas as pd
+
+    zone = ZoneInfo(tz)
+    a = pd.Timestamp(start).tz_convert(tz)
+    b = pd.Timestamp(end).tz_convert(tz)
+    last = b - pd.Timedelta(1, "ns")
+    if a == a.normalize() and b == b.normalize():
+        days = (b.date() - a.date()).days
+        if days <= 1:
+            return a.strftime("%a %Y-%m-%d")
+        return f"{a.strftime('%a %Y-%m-%d')} to {last.strftime('%a %Y-%m-%d')} ({days} days)"
+    day = a.strftime("%a %Y-%m-%d")
+    if last.date() == a.date():
+        return f"{day} {_clock(a, zone)}-{_clock(b, zone, midnight_as_24=True)}"
+    return f"{day} {_clock(a, zone)} to {b.strftime('%a %Y-%m-%d')} {_clock(b, zone)}"
+
+
+class DefaultsHelpFormatter(argparse.HelpFormatter):
+    """Help that states every option's default, unless its text already says it."""
+
+    def _get_help_string(self, action: argparse.Action) -> str:
+        text = action.help or ""
+        if (
+            not action.option_strings
+            or action.required
+            or "default" in text.lower()
+            or action.default is argparse.SUPPRESS
+            or isinstance(action, argparse._StoreConstAction | argparse._VersionAction)
+            or action.nargs == 0
+        ):
+            return text
+        if action.default is None or action.default == "":
+            return f"{text} (default: none)"
+        return f"{text} (default: %(default)s)"
+
+
+#: Library messages a normal fit prints that tell the user nothing they can act on: ArviZ's
+#: once-a-day notice of its coming refactor, PyTensor's note that pip builds have no BLAS (the
+#: model runs on numba, which needs none) and ArviZ's NaN note (the diagnostics gate leaves out
+#: the cells no bin observes, such as closed hours, whose statistics are undefined).
+_QUIET_WARNINGS = (
+    (r"\s*ArviZ is undergoing a major refactor", FutureWarning),
+    (r"PyTensor could not link to a BLAS installation", UserWarning),
+)
+_QUIET_LOGS = {"pytensor.tensor.blas": logging.ERROR}
+
+
+def quiet_library_warnings() -> None:
+    """Silence the library notices of :data:`_QUIET_WARNINGS` (nothing else) in this process."""
+    for message, category in _QUIET_WARNINGS:
+        warnings.filterwarnings("ignore", message=message, category=category)
+    for name, level in _QUIET_LOGS.items():
+        logging.getLogger(name).setLevel(level)
+
+
+def quiet_arviz_nan_note() -> None:
+    """Drop ArviZ's "Array contains NaN-value." log line, once ArviZ is loaded by a fit.
+
+    ArviZ logs through a logger of its own that is not registered with :mod:`logging`, so the
+    filter goes on that logger (reached through the loaded module, never imported from here).
+    """
+    arviz = sys.modules.get("arviz")
+    log = getattr(arviz, "_log", None)
+    if isinstance(log, logging.Logger) and not getattr(log, "_ratecast_quiet", False):
+        log.addFilter(lambda record: "NaN-value" not in record.getMessage())
+        log._ratecast_quiet = True  # type: ignore[attr-defined]
+
+
+@contextmanager
+def progress_lines(
+    what: str, *, every: float = 15.0, stream: TextIO | None = None
+) -> Iterator[None]:
+    """While the block runs, write ``what: still running, 0:45 elapsed`` every ``every`` seconds.
+
+    Each line is flushed as it is written, so a log fed through a pipe shows the fit's progress
+    as it happens (a terminal progress bar redraws one line and reaches a pipe only at the end).
+    """
+    out = stream or sys.stderr
+    stop = threading.Event()
+    started = time.monotonic()
+
+    def beat() -> None:
+        while not stop.wait(every):
+            seconds = int(time.monotonic() - started)
+            print(
+                f"{what}: still running, {seconds // 60}:{seconds % 60:02d} elapsed",
+                file=out,
+                flush=True,
+            )
+
+    thread = threading.Thread(target=beat, name="ratecast-progress", daemon=True)
+    thread.start()
+    try:
+        yield
+    finally:
+        stop.set()
+        thread.join()
+
+
+def progress_bar_wanted(args: argparse.Namespace) -> bool:
+    """A redrawn progress bar only on a terminal; a pipe gets :func:`progress_lines` instead."""
+    return not args.no_progress and sys.stderr.isatty()
 
 
 def add_sampling_options(p: argparse.ArgumentParser) -> None:
@@ -166,16 +374,32 @@ def add_sampling_options(p: argparse.ArgumentParser) -> None:
         default=d.sampler,
         help=f"NUTS implementation (default {d.sampler})",
     )
-    p.add_argument("--no-progress", action="store_true", help="hide the progress bar")
+    p.add_argument(
+        "--no-progress",
+        action="store_true",
+        help="no progress at all (default: a progress bar on a terminal, a line every 15 s "
+        "when output goes to a pipe or file)",
+    )
 
 
 def sampling_options(args: argparse.Namespace) -> FitOptions:
-    """The :class:`~models.fitting.options.FitOptions` a command's arguments ask for."""
+    """The :class:`~models.fitting.options.FitOptions` a command's arguments ask for (the
+    sampler's own progress bar only on a terminal)."""
     return FitOptions(
         draws=args.draws,
         tune=args.tune,
         chains=args.chains,
         seed=args.seed,
         sampler=args.sampler,
-        progressbar=not args.no_progress,
+        progressbar=progress_bar_wanted(args),
     )
+
+
+@contextmanager
+def fit_progress(args: argparse.Namespace, what: str) -> Iterator[None]:
+    """Progress lines for a fit whose output is not a terminal (see :func:`progress_lines`)."""
+    if args.no_progress or sys.stderr.isatty():
+        yield
+        return
+    with progress_lines(what):
+        yield

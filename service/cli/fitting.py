@@ -7,16 +7,22 @@ the shared sampling options and publish through the diagnostics gate.
 from __future__ import annotations
 
 import argparse
+import datetime as dt
 import sys
 from pathlib import Path
 from typing import Any
 
 from models.exceptions import InputError
 from service.cli.common import (
+    OPEN_HELP,
+    STORE_HELP,
     add_model_options,
     add_sampling_options,
+    fit_progress,
     holiday_calendar,
     model_spec,
+    named_file_errors,
+    quiet_arviz_nan_note,
     read_history,
     sampling_options,
     store_from_args,
@@ -35,15 +41,19 @@ def _add_fit(sub: Any) -> None:
     p.add_argument("--tz", required=True, help="IANA time zone of the series, e.g. America/Chicago")
     p.add_argument("--time-column", default="timestamp", help="arrival time column (events)")
     p.add_argument(
-        "--bin", default=None, help="bin width: 15min, 30min, 1h or 1d (events default 1h)"
-    )
-    p.add_argument(
-        "--open",
-        dest="opening",
+        "--bin",
         default=None,
-        help="opening hours, e.g. 'Mon-Fri 07:00-21:00; Sat 09:00-13:00'",
+        help="bin width: 15min, 30min, 1h or 1d; must match a counts file's rows (default: 1h "
+        "for events, inferred from the rows for counts)",
     )
-    p.add_argument("--until", default=None, help="end of observed history (events), ISO 8601")
+    p.add_argument("--open", dest="opening", default=None, help=OPEN_HELP)
+    p.add_argument(
+        "--until",
+        default=None,
+        help="end of the observed history (events only), ISO 8601, to cut the last day short "
+        "(a log taken at 14:30): after the last arrival, no later than the end of its day or "
+        "now (default: the end of the last arrival's day)",
+    )
     p.add_argument(
         "--holidays",
         default=None,
@@ -57,14 +67,11 @@ def _add_fit(sub: Any) -> None:
     p.add_argument(
         "--force", action="store_true", help="publish even if the diagnostics gate fails"
     )
-    p.add_argument(
-        "--store", default=None, help="store folder (default $RATECAST_STORE or ./store)"
-    )
+    p.add_argument("--store", default=None, help=STORE_HELP + "; created if missing")
     p.set_defaults(run=_run_fit)
 
 
 def _run_fit(args: argparse.Namespace) -> int:
-
     from models.fitting.publish import fit_and_publish
     from models.prediction.windows import parse_instant
     from models.ratemodel.binning import OpeningHours
@@ -74,26 +81,33 @@ def _run_fit(args: argparse.Namespace) -> int:
     opening = OpeningHours.parse(args.opening) if args.opening else None
     path = args.events or args.counts
     until = parse_instant(args.until, tz=args.tz).to_pydatetime() if args.until else None
-    binned = read_history(args, opening=opening, until=until)
+    now = dt.datetime.now(dt.UTC)
+    binned = read_history(args, opening=opening, until=until, now=now)
     calendar = holiday_calendar(args.holidays, args.special_days)
     spec = model_spec(args, bin_minutes=binned.bin_minutes, holidays=calendar)
+    end = f"{until.isoformat()}" if until else f"{binned.end_day} 00:00"
     print(
         f"{args.series}: {binned.total} arrivals in {len(binned.count)} observed "
-        f"{binned.bin_minutes}-minute bins, {binned.first_day} to {binned.end_day} ({args.tz}). "
-        "Fitting (the first fit on a machine compiles the model and takes about a minute more)...",
+        f"{binned.bin_minutes}-minute bins, history {binned.first_day} 00:00 up to {end} (end "
+        f"exclusive, {args.tz}). Fitting (the first fit on a machine compiles the model and "
+        "takes about a minute more)...",
         file=sys.stderr,
+        flush=True,
     )
     options = sampling_options(args)
-    outcome = fit_and_publish(
-        binned,
-        spec,
-        store=store_from_args(args),
-        series=args.series,
-        opening=opening,
-        options=options,
-        force=args.force,
-        source={"file": Path(path).name},
-    )
+    store = store_from_args(args, create=True)
+    with fit_progress(args, f"fitting {args.series}"):
+        quiet_arviz_nan_note()
+        outcome = fit_and_publish(
+            binned,
+            spec,
+            store=store,
+            series=args.series,
+            opening=opening,
+            options=options,
+            force=args.force,
+            source={"file": Path(path).name},
+        )
     diag = outcome.fit.diagnostics
     assert outcome.version is not None
     status = "passed" if diag.ok else "FAILED (published because of --force)"
@@ -123,22 +137,33 @@ def _add_fit_group(sub: Any) -> None:
     )
     p.add_argument("--tz", required=True, help="IANA time zone shared by the series")
     p.add_argument(
-        "--bin", default=None, help="bin width: 15min, 30min, 1h or 1d (default: inferred)"
+        "--bin",
+        default=None,
+        help="bin width: 15min, 30min, 1h or 1d; must match the rows (default: inferred)",
     )
-    p.add_argument("--open", dest="opening", default=None, help="opening hours shared by all")
-    p.add_argument("--holidays", default=None, help="COUNTRY or COUNTRY:SUBDIVISION")
+    p.add_argument("--open", dest="opening", default=None, help=OPEN_HELP + "; shared by all")
+    p.add_argument(
+        "--holidays", default=None, help="public holidays as COUNTRY or COUNTRY:SUBDIVISION"
+    )
     p.add_argument("--special-days", default=None, help="extra dates, YYYY-MM-DD,...")
     add_model_options(p)
     add_sampling_options(p)
     p.add_argument("--force", action="store_true", help="publish even if the gate fails")
-    p.add_argument("--store", default=None)
+    p.add_argument("--store", default=None, help=STORE_HELP + "; created if missing")
     p.set_defaults(run=_run_fit_group)
 
 
 def _run_fit_group(args: argparse.Namespace) -> int:
     from models.fitting.joint import fit_joint, make_joint_data, publish_joint
-    from models.ratemodel.binning import OpeningHours, bin_counts, parse_bin_width, read_table
+    from models.ratemodel.binning import (
+        OpeningHours,
+        bin_counts,
+        check_zone,
+        parse_bin_width,
+        read_table,
+    )
 
+    check_zone(args.tz)
     opening = OpeningHours.parse(args.opening) if args.opening else None
     bin_minutes = parse_bin_width(args.bin) if args.bin else None
     histories = {}
@@ -148,9 +173,11 @@ def _run_fit_group(args: argparse.Namespace) -> int:
             raise InputError(f"--member {member!r} must be NAME=FILE, e.g. queue-a=queue_a.csv")
         if name in histories:
             raise InputError(f"--member names series {name!r} twice")
-        histories[name] = bin_counts(
-            read_table(path), tz=args.tz, bin_minutes=bin_minutes, opening=opening
-        )
+        table = read_table(path)
+        with named_file_errors(path):
+            histories[name] = bin_counts(
+                table, tz=args.tz, bin_minutes=bin_minutes, opening=opening
+            )
     widths = {h.bin_minutes for h in histories.values()}
     calendar = holiday_calendar(args.holidays, args.special_days)
     spec = model_spec(args, bin_minutes=min(widths), holidays=calendar)
@@ -159,12 +186,16 @@ def _run_fit_group(args: argparse.Namespace) -> int:
         f"fitting {', '.join(histories)} jointly ({sum(h.total for h in histories.values())} "
         f"arrivals, {data.n_days} days, {args.tz})...",
         file=sys.stderr,
+        flush=True,
     )
     options = sampling_options(args)
-    fit = fit_joint(data, spec, options=options)
+    store = store_from_args(args, create=True)
+    with fit_progress(args, f"fitting {', '.join(histories)}"):
+        quiet_arviz_nan_note()
+        fit = fit_joint(data, spec, options=options)
     published = publish_joint(
         fit,
-        store_from_args(args),
+        store,
         openings=dict.fromkeys(histories, opening),
         force=args.force,
     )

@@ -10,12 +10,23 @@ import json
 import sys
 from typing import Any
 
+from models.exceptions import RatecastError
 from service.cli.common import (
+    STORE_HELP,
+    add_degraded_option,
+    check_degraded,
+    emit,
     grid,
     number_list,
     store_from_args,
+    window_label,
 )
-from service.queries.forecast import CAUTION, forecast_csv, forecast_document, range_windows
+from service.queries.forecast import (
+    CAUTION,
+    forecast_csv,
+    forecast_document,
+    range_windows,
+)
 
 __all__ = ["forecast_table", "register"]
 
@@ -23,25 +34,33 @@ __all__ = ["forecast_table", "register"]
 # ----------------------------------------------------------------------------- forecast
 def _add_forecast(sub: Any) -> None:
     p = sub.add_parser("forecast", help="predictive counts for windows of a published series")
-    p.add_argument("--series", required=True)
-    p.add_argument("--start", required=True, help="ISO 8601; local time of the series if no offset")
-    p.add_argument("--end", required=True, help="ISO 8601 (exclusive)")
+    p.add_argument("--series", required=True, help="a published series (see ratecast series)")
     p.add_argument(
-        "--step", default=None, help="cut the range into windows: 15min, 30min, 1h, 1d..."
+        "--start",
+        required=True,
+        help="ISO 8601 date or date-time, e.g. 2026-04-27T09:00; local time of the series "
+        "without an offset",
+    )
+    p.add_argument("--end", required=True, help="ISO 8601, as --start (exclusive)")
+    p.add_argument(
+        "--step",
+        default=None,
+        help="cut the range into windows: 15min, 30min, 1h, 1d... (default: one window)",
     )
     p.add_argument("--levels", default="0.8,0.95", help="central interval levels")
     p.add_argument("--quantiles", default="", help="quantile levels, e.g. 0.05,0.5,0.95")
     p.add_argument("--at-least", default="", help="thresholds k for P(N >= k), e.g. 10,20")
     p.add_argument("--total", action="store_true", help="also give the total over all windows")
-    p.add_argument("--version", default=None, help="a stored version (default: current)")
-    p.add_argument("--format", choices=("table", "json", "csv"), default="table")
-    p.add_argument("--store", default=None)
+    p.add_argument("--version", default=None, help="a stored version (default: the current one)")
+    p.add_argument("--format", choices=("table", "json", "csv"), default="table", help="output")
+    p.add_argument("--store", default=None, help=STORE_HELP)
+    add_degraded_option(p)
     p.set_defaults(run=_run_forecast)
 
 
 def _run_forecast(args: argparse.Namespace) -> int:
-
     stored = store_from_args(args).load(args.series, args.version)
+    check_degraded(args, stored)
     starts, ends = range_windows(
         args.start, args.end, step=args.step, tz=stored.posterior.calendar.tz
     )
@@ -54,20 +73,14 @@ def _run_forecast(args: argparse.Namespace) -> int:
         at_least=number_list(args.at_least, option="--at-least", kind=int),
         total=args.total,
     )
-    if args.format == "json":
-        print(json.dumps(doc, indent=2))
-    elif args.format == "csv":
-        sys.stdout.write(forecast_csv(doc))
-    else:
-        sys.stdout.write(forecast_table(doc))
-    return 0
+    return emit(doc, args.format, csv=forecast_csv, table=forecast_table)
 
 
 def forecast_table(doc: dict[str, Any]) -> str:
     """A fixed-width table for people, with the caution underneath."""
     rows = list(doc["windows"])
     if doc.get("total"):
-        rows.append({**doc["total"], "start": "total", "end": ""})
+        rows.append({**doc["total"], "label": "total"})
     headers = ["window", "mean", "sd"]
     first = rows[0]
     headers += [f"{float(k) * 100:g}% interval" for k in first["intervals"]]
@@ -75,7 +88,7 @@ def forecast_table(doc: dict[str, Any]) -> str:
     headers += ["P(0)"] + [f"P(>={k})" for k in first.get("at_least", {})]
     body = []
     for row in rows:
-        label = row["start"] if row["start"] == "total" else _window_label(row["start"], row["end"])
+        label = row.get("label") or window_label(row["start"], row["end"], doc["tz"])
         cells = [label, f"{row['mean']:.1f}", f"{row['sd']:.1f}"]
         cells += [f"{lo}-{hi}" for lo, hi in row["intervals"].values()]
         cells += [str(v) for v in row["quantiles"].values()]
@@ -90,27 +103,15 @@ def forecast_table(doc: dict[str, Any]) -> str:
     return "\n".join(lines) + "\n"
 
 
-def _window_label(start: str, end: str) -> str:
-    import pandas as pd
-
-    a, b = pd.Timestamp(start), pd.Timestamp(end)
-    same_day = a.date() == b.date() or (
-        b - a <= pd.Timedelta(days=1) and b.hour == 0 and b.minute == 0
-    )
-    tail = b.strftime("%H:%M") if same_day else b.strftime("%Y-%m-%d %H:%M")
-    return f"{a.strftime('%a %Y-%m-%d %H:%M')}-{tail}"
-
-
 # ----------------------------------------------------------------------------- series
 def _add_series(sub: Any) -> None:
     p = sub.add_parser("series", help="list published series, or show one")
     p.add_argument("name", nargs="?", help="a series to show in detail")
-    p.add_argument("--store", default=None)
+    p.add_argument("--store", default=None, help=STORE_HELP)
     p.set_defaults(run=_run_series)
 
 
 def _run_series(args: argparse.Namespace) -> int:
-
     store = store_from_args(args)
     if args.name:
         stored = store.load(args.name)
@@ -119,14 +120,23 @@ def _run_series(args: argparse.Namespace) -> int:
     names = store.series()
     if not names:
         print(f"no series published in {store.root}")
+    damaged = 0
     for name in names:
-        manifest = store.load(name).manifest
-        data = manifest["data"]
+        try:
+            stored = store.load(name)
+        except RatecastError as exc:  # one damaged series must not hide the others
+            damaged += 1
+            print(f"{name}  DAMAGED: {exc}")
+            continue
+        manifest, calendar = stored.manifest, stored.posterior.calendar
+        gate = {True: "ok", False: "FAILED"}.get(manifest.get("diagnostics", {}).get("ok"), "-")
         print(
-            f"{name}  {manifest['version']}  {data['first_day']}..{data['end_day']}  {data['tz']}  "
-            f"fitted {manifest['created_at']}  gate {'ok' if manifest['diagnostics']['ok'] else 'FAILED'}"
+            f"{name}  {stored.version}  history {calendar.first_day} up to "
+            f"{stored.posterior.history_end} (end exclusive)  {calendar.tz}  fitted "
+            f"{manifest.get('created_at', '-')}  gate {gate}"
+            + ("  DEGRADED (published with --force)" if stored.degraded else "")
         )
-    return 0
+    return 5 if damaged else 0
 
 
 # ----------------------------------------------------------------------------- example data

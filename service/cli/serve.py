@@ -70,7 +70,43 @@ def register(sub: Any) -> None:
         default="info",
     )
     p.add_argument("--no-access-log", action="store_true", help="do not log one line per request")
+    p.add_argument(
+        "--keep-alive",
+        type=_bounded("--keep-alive", 1, 300),
+        default=5,
+        metavar="SECONDS",
+        help="close an idle keep-alive connection after this long (default 5, 1-300)",
+    )
+    p.add_argument(
+        "--max-connections",
+        type=_bounded("--max-connections", 1, 100_000),
+        default=512,
+        help="connections (and requests) open at once per worker; beyond it new requests get "
+        "503 at once instead of queueing (default 512)",
+    )
+    p.add_argument(
+        "--max-header-bytes",
+        type=_bounded("--max-header-bytes", 1024, 1_048_576),
+        default=16_384,
+        help="largest request head (request line and headers) read before refusing with 400 "
+        "(default 16384)",
+    )
     p.set_defaults(run=_run_serve)
+
+
+def _bounded(option: str, low: int, high: int) -> Any:
+    def parse(text: str) -> int:
+        try:
+            number = int(text)
+        except ValueError:
+            number = low - 1
+        if not low <= number <= high:
+            raise argparse.ArgumentTypeError(
+                f"{option} {text!r} is not allowed: use a whole number from {low} to {high}"
+            )
+        return number
+
+    return parse
 
 
 def _run_serve(args: argparse.Namespace) -> int:
@@ -93,5 +129,8 @@ def _run_serve(args: argparse.Namespace) -> int:
         access_log=not args.no_access_log,
         server_header=False,
         timeout_graceful_shutdown=10,
+        timeout_keep_alive=args.keep_alive,
+        limit_concurrency=args.max_connections,
+        h11_max_incomplete_event_size=args.max_header_bytes,
     )
     return 0

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import configparser
 import json
+import os
 import re
 import shlex
 from pathlib import Path
@@ -101,9 +102,14 @@ class TestEnvFiles:
         Settings(_env_file=None)  # type: ignore[call-arg]  # raises if a value does not validate
 
     def test_workers_value_is_accepted_by_serve(self) -> None:
+        # The file documents "auto" as one worker per CPU this process may run on, as the
+        # standard library reports it (os.sched_getaffinity); a number is taken as written.
         workers = env_file(DEPLOY / "uvicorn.env")["RATECAST_WORKERS"]
         args = check_ratecast_command(["ratecast", "serve", "--workers", workers])
-        assert args.workers >= 1
+        if workers == "auto":
+            assert args.workers == len(os.sched_getaffinity(0))
+        else:
+            assert args.workers == int(workers)
 
 
 class TestSystemd:

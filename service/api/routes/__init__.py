@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from fastapi import APIRouter
 
-from service.api.routes import admin, batch, forecast, health, metrics, series
+from service.api.routes import admin, batch, capacity, forecast, health, metrics, series
 
 __all__ = ["ROUTERS"]
 
@@ -14,6 +14,7 @@ ROUTERS: tuple[APIRouter, ...] = (
     series.router,
     forecast.router,
     batch.router,
+    capacity.router,
     admin.router,
     metrics.router,
 )

@@ -3,13 +3,12 @@
 from __future__ import annotations
 
 import asyncio
-from dataclasses import asdict
 
-from fastapi import APIRouter
-from fastapi.responses import JSONResponse
+from fastapi import APIRouter, Response
 
 from service.api.deps import AdminAccess, RegistryDep
-from service.api.schemas import ErrorResponse, ReloadResponse
+from service.api.registry import ReloadReport
+from service.api.schemas import error_responses
 
 __all__ = ["router"]
 
@@ -17,25 +16,22 @@ router = APIRouter(
     prefix="/v1/admin",
     tags=["admin"],
     dependencies=[AdminAccess],
-    responses={
-        401: {"model": ErrorResponse, "description": "No bearer token was given."},
-        403: {"model": ErrorResponse, "description": "Wrong token, or admin calls are disabled."},
-    },
+    responses=error_responses(401, 403),
 )
 
 
 @router.post(
     "/reload",
     summary="Load newly published versions now",
-    response_model=ReloadResponse,
-    responses={503: {"model": ReloadResponse, "description": "The store cannot be listed."}},
+    response_model=ReloadReport,
+    responses={503: {"model": ReloadReport, "description": "The store cannot be listed."}},
 )
-async def reload(registry: RegistryDep) -> JSONResponse:
+async def reload(registry: RegistryDep, response: Response) -> ReloadReport:
     """Load every series' current version that is not served yet, and swap it in atomically.
 
     A version that fails to load is refused and listed; the series keeps its previous version.
     Refused versions are tried again on every call (the periodic watcher tries them only once).
     """
     report = await asyncio.to_thread(registry.reload)
-    body = ReloadResponse.model_validate(asdict(report))
-    return JSONResponse(body.model_dump(), status_code=503 if report.store_error else 200)
+    response.status_code = 503 if report.store_error else 200
+    return report

@@ -3,10 +3,8 @@
 from __future__ import annotations
 
 import asyncio
-from dataclasses import asdict
 
-from fastapi import APIRouter
-from fastapi.responses import JSONResponse
+from fastapi import APIRouter, Response
 
 from service.api.deps import RegistryDep
 from service.api.schemas import HealthLive, HealthReady
@@ -28,22 +26,23 @@ async def live() -> HealthLive:
     response_model=HealthReady,
     responses={503: {"model": HealthReady, "description": "Not ready (same body, ready false)."}},
 )
-async def ready(registry: RegistryDep) -> JSONResponse:
+async def ready(registry: RegistryDep, response: Response) -> HealthReady:
     """Ready when the store can be listed now and at least one series is loaded.
 
-    Versions refused at load (damaged files) are listed; the series keep serving their previous
-    version, so a refusal alone does not make the service unready.
+    ``serving`` names the version of every served series. Versions refused at load (damaged
+    files) are listed with a short reason; the series keep serving their previous version, so a
+    refusal alone does not make the service unready.
     """
     store_error = await asyncio.to_thread(registry.check_store)
-    loaded = len(registry.snapshot())
-    body = HealthReady.model_validate(
-        {
-            "ready": store_error is None and loaded > 0,
-            "store_readable": store_error is None,
-            "series_loaded": loaded,
-            "refused": [asdict(r) for r in registry.refusals],
-            "last_reload": registry.last_reload,
-            "store_error": store_error,
-        }
+    served = registry.snapshot()
+    body = HealthReady(
+        ready=store_error is None and len(served) > 0,
+        store_readable=store_error is None,
+        series_loaded=len(served),
+        serving={name: served[name].version for name in sorted(served)},
+        refused=registry.refusals,
+        last_reload=registry.last_reload,
+        store_error=store_error,
     )
-    return JSONResponse(body.model_dump(), status_code=200 if body.ready else 503)
+    response.status_code = 200 if body.ready else 503
+    return body

@@ -5,8 +5,8 @@ from __future__ import annotations
 from fastapi import APIRouter
 from fastapi.responses import PlainTextResponse
 
-from service.api.deps import MetricsDep, ReadAccess, RegistryDep
-from service.api.schemas import ErrorResponse
+from service.api.deps import MetricsDep, ReadAccess, RegistryDep, WorkDep
+from service.api.schemas import error_responses
 from service.api.telemetry import render
 
 __all__ = ["router"]
@@ -15,10 +15,8 @@ router = APIRouter(
     prefix="/v1/metrics",
     tags=["metrics"],
     dependencies=[ReadAccess],
-    responses={
-        401: {"model": ErrorResponse, "description": "A read token is configured and missing."},
-        403: {"model": ErrorResponse, "description": "The token given is not valid."},
-    },
+    # Errors are JSON although the route answers Prometheus text; documented as such.
+    responses=error_responses(401, 403),
 )
 
 
@@ -34,6 +32,7 @@ class PrometheusResponse(PlainTextResponse):
     response_class=PrometheusResponse,
     responses={200: {"content": {"text/plain; version=0.0.4; charset=utf-8": {}}}},
 )
-async def metrics(metrics: MetricsDep, registry: RegistryDep) -> PrometheusResponse:
-    """Request counts and latency histograms per route template; served and refused versions."""
-    return PrometheusResponse(render(metrics, registry))
+async def metrics(metrics: MetricsDep, registry: RegistryDep, work: WorkDep) -> PrometheusResponse:
+    """Request counts and latency histograms per route template; served and refused versions;
+    the work pool (jobs started, running, waiting, refused and abandoned)."""
+    return PrometheusResponse(render(metrics, registry, work))

@@ -10,7 +10,7 @@ from fastapi import APIRouter
 from models.store import StoredVersion
 from service.api.deps import ReadAccess, RegistryDep, SettingsDep
 from service.api.forecasting import forecast_until, served_version
-from service.api.schemas import ErrorResponse, SeriesDetail, SeriesList, SeriesSummary
+from service.api.schemas import SeriesDetail, SeriesList, SeriesSummary, error_responses
 
 __all__ = ["router", "summary"]
 
@@ -18,10 +18,7 @@ router = APIRouter(
     prefix="/v1/series",
     tags=["series"],
     dependencies=[ReadAccess],
-    responses={
-        401: {"model": ErrorResponse, "description": "A read token is configured and missing."},
-        403: {"model": ErrorResponse, "description": "The token given is not valid."},
-    },
+    responses=error_responses(401, 403),
 )
 
 
@@ -50,6 +47,7 @@ def summary(stored: StoredVersion, *, horizon_days: int) -> dict[str, Any]:
         "forecast_until": forecast_until(stored, horizon_days).isoformat(),
         "fitted_at": stored.manifest.get("created_at"),
         "draws": posterior.n_draws,
+        "degraded": stored.degraded,
         "diagnostics": _diagnostics(stored.manifest),
     }
 
@@ -68,10 +66,7 @@ async def list_series(registry: RegistryDep, settings: SettingsDep) -> SeriesLis
 @router.get(
     "/{series}",
     summary="One series in detail",
-    responses={
-        404: {"model": ErrorResponse, "description": "No such series is served."},
-        422: {"model": ErrorResponse, "description": "The name is not a valid series name."},
-    },
+    responses=error_responses(404, 422),
 )
 async def series_detail(series: str, registry: RegistryDep, settings: SettingsDep) -> SeriesDetail:
     """The served version of one series, its manifest's description and all stored versions."""

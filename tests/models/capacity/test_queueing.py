@@ -1,6 +1,6 @@
 """Tests for models.capacity.queueing against published tables and independent computations.
 
-Sources (see /work/shared/REFERENCE_VALUES.md, "Queueing"):
+Sources (see ../shared/REFERENCE_VALUES.md, "Queueing"):
 [T] read in the published text; [R] recomputed with scipy/mpmath as that file records.
 - Tijms, *A First Course in Stochastic Models*, Wiley 2003, sec. 5.3 (Table 5.3.2 p.201, p.200).
 - Halfin & Whitt, Operations Research 29(3) 1981; Borst, Mandelbaum & Reiman, "Dimensioning
@@ -38,6 +38,7 @@ from models.capacity.queueing import (
     square_root_staffing,
 )
 from models.exceptions import StaffingError
+from tests.models.capacity.support import refusal
 
 # Tijms 2003, Table 5.3.2 p.201 [T][R]: load -> smallest c with P(wait > 0) <= alpha.
 TIJMS_ALPHAS = (0.5, 0.2, 0.1)
@@ -580,3 +581,67 @@ class TestInputChecks:
     def test_staffing_error_is_a_value_error(self):
         with pytest.raises(ValueError, match="handle_time"):
             service_level(1.0, 2, handle_time=-3.0, answer_within=1.0)
+
+
+class TestLimits:
+    """Every search and loop is bounded; what would run away or come out NaN is refused."""
+
+    def test_load_above_the_limit_is_refused(self):
+        with pytest.raises(
+            StaffingError, match=r"load must be at most 1e\+06 erlangs .*got 2000000.0"
+        ):
+            agents_for_wait_probability(2e6, 0.2)
+        with pytest.raises(StaffingError, match=r"load must be at most 1e\+06 erlangs"):
+            erlang_c(np.array([10.0, 1.5e6]), 20)
+
+    def test_agents_above_the_limit_are_refused(self):
+        # An int too large even for a float is refused too, not an OverflowError.
+        for agents in (queueing.MAX_AGENTS + 1, 10**400):
+            with pytest.raises(StaffingError, match=r"agents must be a whole number from 0 to"):
+                erlang_b(1.0, agents)
+
+    def test_search_at_the_largest_load_ends(self):
+        # The square-root rule (Halfin & Whitt 1981) is within one agent of the exact count all
+        # through Tijms 2003, Table 5.3.2 [T][R], and only closer as the load grows; the exact
+        # search at the largest load allowed must end there, not run on.
+        found = agents_for_wait_probability(queueing.MAX_LOAD, 0.2)
+        assert abs(found - square_root_staffing(queueing.MAX_LOAD, halfin_whitt_beta(0.2))) <= 1
+
+    def test_occupancy_ceiling_near_zero_is_refused(self):
+        message = refusal(
+            lambda: agents_for_service_level(
+                10.0, handle_time=240.0, answer_within=20.0, target=0.8, max_occupancy=5e-324
+            )
+        )
+        assert "max_occupancy 5e-324 at a load of 10.0 erlangs asks for more than" in message
+
+    def test_square_root_staffing_past_the_limit_is_refused(self):
+        with pytest.raises(StaffingError, match=r"beta 1e\+308 .* asks for inf agents"):
+            square_root_staffing(1e6, 1e308)
+
+    @pytest.mark.parametrize("alpha", [1e-300, 1e-12, 0.5, 1 - 1e-12])
+    def test_halfin_whitt_beta_brackets_every_target(self, alpha):
+        beta = halfin_whitt_beta(alpha)
+        assert math.isfinite(beta)
+        assert halfin_whitt_wait_probability(beta) == pytest.approx(alpha, rel=1e-9)
+
+    @pytest.mark.parametrize(
+        ("arguments", "named"),
+        [
+            ((10.0, 1e308, 1.0, 10), "service_rate=1e+308"),  # N mu overflows
+            ((10.0, 1e308, 0.0, 10), "service_rate=1e+308"),  # the Erlang C branch: inf x 0
+        ],
+    )
+    def test_erlang_a_non_finite_result_is_refused(self, arguments, named):
+        with pytest.raises(StaffingError, match="is not a finite number") as caught:
+            erlang_a(*arguments, answer_within=0.0)
+        assert named in str(caught.value)
+
+    def test_erlang_a_load_above_the_limit_is_refused(self):
+        with pytest.raises(StaffingError, match=r"load of 2e\+06 erlangs; allowed: at most 1e\+06"):
+            erlang_a(2e6, 1.0, 1.0, 10)
+
+    def test_erlang_a_rate_that_underflows_is_an_empty_queue(self):
+        # lambda / mu = 1e-320 / 1e3 rounds to 0: nobody arrives, so nobody waits (definition).
+        result = erlang_a(1e-320, 1e3, 1.0, 3, answer_within=0.0)
+        assert result == ErlangAResult(0.0, 0.0, 0.0, 1.0)

@@ -1,6 +1,6 @@
 """Staffing under forecast uncertainty: published queue values, the meaning of p, bad inputs.
 
-Sources (see /work/shared/REFERENCE_VALUES.md, "Queueing"):
+Sources (see ../shared/REFERENCE_VALUES.md, "Queueing"):
 - Tijms, *A First Course in Stochastic Models*, Wiley 2003, sec. 5.3: Table 5.3.2 p.201 [T][R]
   and p.200 [T]. With answer time 0 the service level is 1 - P(wait > 0), so "service level
   >= 1 - alpha at T = 0" is Tijms' "P(wait > 0) <= alpha".
@@ -19,7 +19,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from models.capacity import queueing, staffing
+from models.capacity import counts, queueing, staffing
 from models.capacity.staffing import (
     ServiceTarget,
     evaluate_staffing,
@@ -29,6 +29,7 @@ from models.capacity.staffing import (
 )
 from models.exceptions import StaffingError
 from models.prediction.mixture import summarise
+from tests.models.capacity.support import refusal
 
 HALF_HOUR = 1800.0
 WORKED_15 = ServiceTarget(handle_time=240, answer_within=15, share=0.8)
@@ -286,7 +287,7 @@ class TestStaffIntervals:
     def test_count_distribution_keeps_the_predictive_mean_and_variance(self) -> None:
         # The internal count pmf against models.prediction.mixture.summarise (exact moments of the mixture).
         lam = np.column_stack([lognormal_draws(100, 0.3), lognormal_draws(2.5, 0.6, seed=3)])
-        grid = staffing._count_grid(lam)
+        grid = counts.count_grid(lam)
         exact = summarise(lam, levels=())
         mean = (grid.counts * grid.pmf).sum(axis=1)
         var = (grid.counts**2 * grid.pmf).sum(axis=1) - mean**2
@@ -431,3 +432,187 @@ class TestBadInputs:
     def test_agents_must_be_whole_numbers(self, agents: list[Any]) -> None:
         with pytest.raises(StaffingError, match="agents"):
             evaluate_staffing(np.full((5, 1), 3.0), agents, interval_seconds=900, target=WORKED_15)
+
+
+def _forced(**values: Any) -> ServiceTarget:
+    """A target whose fields are set past the checks, as a caller bypassing them could."""
+    target = ServiceTarget(handle_time=240, answer_within=20, share=0.8, patience=60)
+    for name, value in values.items():
+        object.__setattr__(target, name, value)
+    return target
+
+
+class TestSpinInputs:
+    """Issue 12 item 1: these inputs once kept the agents search doubling for ever.
+
+    Each call runs under a watchdog (tests/models/capacity/support.py) so that a regression
+    fails here instead of hanging the run.
+    """
+
+    LAM = np.full((20, 4), 30.0)
+
+    def test_subnormal_handle_time_and_patience_are_refused(self) -> None:
+        def call() -> None:
+            goal = ServiceTarget(handle_time=5e-324, answer_within=20, share=0.8, patience=5e-324)
+            staff_intervals(self.LAM, interval_seconds=HALF_HOUR, target=goal)
+
+        message = refusal(call)
+        assert "handle_time must be seconds in [0.001, 86400]; got 5e-324" in message
+
+    @pytest.mark.parametrize("within", [0.0, 20.0])
+    def test_subnormal_patience_with_zero_agents_is_refused(self, within: float) -> None:
+        # The staffing document's sequence: plan, then the given staffing agents = [0].
+        def call() -> None:
+            goal = ServiceTarget(handle_time=240, answer_within=within, share=0.8, patience=5e-324)
+            staff_intervals(self.LAM, interval_seconds=HALF_HOUR, target=goal)
+            evaluate_staffing(self.LAM, np.asarray(0), interval_seconds=HALF_HOUR, target=goal)
+
+        message = refusal(call)
+        assert "patience must be finite seconds >= 0.001, or None (nobody hangs up)" in message
+        assert "got 5e-324" in message
+
+    @pytest.mark.parametrize(
+        "values",
+        [
+            {"patience": 5e-324, "answer_within": 0.0},  # theta t = inf x 0 = NaN
+            {"handle_time": 5e-324, "patience": 5e-324},  # mu = theta = inf
+        ],
+    )
+    def test_a_nan_service_level_ends_the_search(self, values: dict[str, float]) -> None:
+        # Past the target checks, the search itself must stop at the first NaN and say so.
+        goal = _forced(**values)
+        message = refusal(
+            lambda: required_agents([360.0, 3.0], interval_seconds=HALF_HOUR, target=goal)
+        )
+        assert "the service level is" in message and "nan" in message
+        assert "allowed: inputs that give a finite service level" in message
+
+    @pytest.mark.parametrize("patience", [None, 60.0])
+    def test_a_search_beyond_the_agent_limit_is_refused(self, patience: float | None) -> None:
+        # A share above 1, forced past the check, is met by no staffing: the doubling must stop
+        # at MAX_AGENTS rather than run on.
+        goal = _forced(share=1.5, patience=patience)
+        message = refusal(lambda: required_agents([360.0], interval_seconds=HALF_HOUR, target=goal))
+        assert f"no staffing of up to {queueing.MAX_AGENTS} agents" in message
+
+
+class TestServiceTargetRanges:
+    @pytest.mark.parametrize("handle_time", [0.001, 240, 86_400])
+    def test_handle_times_from_a_millisecond_to_a_day_are_accepted(self, handle_time) -> None:
+        assert ServiceTarget(handle_time=handle_time, answer_within=0, share=0.5).handle_time == (
+            float(handle_time)
+        )
+
+    @pytest.mark.parametrize("handle_time", [5e-324, 0.000999, 86_400.5, float("inf")])
+    def test_handle_times_outside_are_refused_with_the_range(self, handle_time) -> None:
+        with pytest.raises(StaffingError) as caught:
+            ServiceTarget(handle_time=handle_time, answer_within=20, share=0.8)
+        assert str(caught.value) == (
+            f"handle_time must be seconds in [0.001, 86400]; got {handle_time!r}"
+        )
+
+    @pytest.mark.parametrize("patience", [5e-324, 1e-300, 0.000999, 0.0, -1.0, float("nan")])
+    def test_patience_below_a_millisecond_is_refused_with_the_range(self, patience) -> None:
+        with pytest.raises(StaffingError, match=r"patience must be finite seconds >= 0\.001"):
+            ServiceTarget(handle_time=240, answer_within=20, share=0.8, patience=patience)
+
+    def test_patience_of_a_millisecond_is_accepted(self) -> None:
+        goal = ServiceTarget(handle_time=240, answer_within=0, share=0.5, patience=0.001)
+        # Callers who wait hang up within about a millisecond, so the queue is nearly the loss
+        # system M/M/1/1: at load 1 (one arrival per 240 s, AHT 240 s) a share B(1, 1) = 1/2
+        # finds the agent busy (REFERENCE_VALUES.md exact rational) and 1/2 is answered at once.
+        level = service_level_at(1.0, 1, interval_seconds=240, target=goal)
+        assert float(level) == pytest.approx(0.5, abs=1e-5)
+
+    @pytest.mark.parametrize(
+        ("options", "named"),
+        [
+            ({"share": float("nan")}, "share must be in (0, 1); got nan"),
+            ({"share": float("inf")}, "share must be in (0, 1); got inf"),
+            ({"answer_within": float("inf")}, "answer_within must be finite seconds >= 0"),
+            ({"answer_within": "20"}, "answer_within must be a number"),
+        ],
+    )
+    def test_non_finite_targets_are_refused(self, options: dict[str, Any], named: str) -> None:
+        base = {"handle_time": 240.0, "answer_within": 20.0, "share": 0.8}
+        with pytest.raises(StaffingError) as caught:
+            ServiceTarget(**{**base, **options})
+        assert named in str(caught.value)
+
+
+class TestStaffingEqualsQueueing:
+    """One implementation: staffing's figures are queueing's, with the same queue-state limit."""
+
+    @pytest.mark.parametrize(
+        ("arrivals", "agents", "within"),
+        [(360.0, 55, 15.0), (360.0, 54, 20.0), (95.0 * 1800 / 240, 100, 0.0), (3.0, 1, 30.0)],
+    )
+    def test_erlang_c(self, arrivals: float, agents: int, within: float) -> None:
+        # Includes the worked interval and Tijms 2003 p.200 (95 erlangs on 100 agents) [R].
+        goal = ServiceTarget(handle_time=240, answer_within=within, share=0.8)
+        mine = float(service_level_at(arrivals, agents, interval_seconds=HALF_HOUR, target=goal))
+        load = arrivals * 240 / HALF_HOUR
+        theirs = queueing.service_level(load, agents, handle_time=240.0, answer_within=within)
+        assert mine == pytest.approx(theirs, rel=0, abs=1e-12)
+
+    @pytest.mark.parametrize(
+        ("arrivals", "agents", "patience"),
+        [(360.0, 55, 90.0), (360.0, 40, 90.0), (600.0, 10, 1.0), (3.0, 1, 3600.0)],
+    )
+    def test_erlang_a(self, arrivals: float, agents: int, patience: float) -> None:
+        goal = ServiceTarget(handle_time=240, answer_within=20, share=0.8, patience=patience)
+        mine = float(service_level_at(arrivals, agents, interval_seconds=HALF_HOUR, target=goal))
+        theirs = queueing.erlang_a(
+            arrivals / HALF_HOUR, 1 / 240, 1 / patience, agents, answer_within=20.0
+        ).service_level
+        assert mine == pytest.approx(theirs, rel=1e-12)
+
+    def test_one_queue_state_limit_accepts_the_same_queues(self) -> None:
+        # 1 arrival per second against 120 agents x 1/240 s = 0.5 answered per second: about
+        # 0.5 x patience callers queue, so 8e5 s of patience needs some 8e5 of the 1e6 states.
+        # Nearly every answered caller is served within 1e6 s, and in this overload all agents
+        # are busy, so the answered share is close to 0.5 / 1 (flow balance: common practice, no
+        # source); both modules give the same figure.
+        goal = ServiceTarget(handle_time=240, answer_within=1e6, share=0.5, patience=8e5)
+        mine = float(service_level_at(1800.0, 120, interval_seconds=HALF_HOUR, target=goal))
+        theirs = queueing.erlang_a(1.0, 1 / 240, 1 / 8e5, 120, answer_within=1e6).service_level
+        assert mine == pytest.approx(theirs, rel=1e-12)
+        assert mine == pytest.approx(0.5, abs=1e-3)
+
+    def test_one_queue_state_limit_refuses_the_same_queues(self) -> None:
+        # With 1.2e6 s of patience about 6e5 callers would queue: more than half the limit.
+        # Before the limit was one, queueing allowed 5e6 states and would have answered.
+        goal = ServiceTarget(handle_time=240, answer_within=20, share=0.8, patience=1.2e6)
+        limit = f"at most {queueing.MAX_QUEUE_STATES:,} queue states"
+        assert queueing.MAX_QUEUE_STATES == 1_000_000
+        with pytest.raises(StaffingError, match=r"patience of 1\.2e\+06 s is too long") as mine:
+            service_level_at(1800.0, 120, interval_seconds=HALF_HOUR, target=goal)
+        with pytest.raises(StaffingError, match=r"patience_rate 8\.3333") as theirs:
+            queueing.erlang_a(1.0, 1 / 240, 1 / 1.2e6, 120, answer_within=20.0)
+        assert limit in str(mine.value) and limit in str(theirs.value)
+
+
+class TestHeavyInputs:
+    def test_a_load_above_the_limit_is_refused_naming_the_interval(self) -> None:
+        goal = ServiceTarget(handle_time=86_400, answer_within=20, share=0.8)
+        lam = np.full((3, 2), 30.0)
+        lam[:, 1] = 30_000.0  # 30,000 calls of a day each in 30 min: 1.44e6 erlangs
+        with pytest.raises(StaffingError, match=r"interval 1: 30000 arrivals .* at most 1e\+06"):
+            staff_intervals(lam, interval_seconds=HALF_HOUR, target=goal)
+        with pytest.raises(StaffingError, match=r"interval 1: 30000 arrivals"):
+            evaluate_staffing(lam, 10**6, interval_seconds=HALF_HOUR, target=goal)
+
+    def test_a_forecast_too_wide_for_the_count_grid_is_refused_before_work(self) -> None:
+        # Draws from 1e3 to 1e9 arrivals would need a grid of about 1e9 counts (and the exact
+        # quantile a sum as long): refused at once, under the watchdog.
+        goal = ServiceTarget(handle_time=0.001, answer_within=0, share=0.8)
+        lam = np.array([[1e3], [1e9]])
+        message = refusal(lambda: staff_intervals(lam, interval_seconds=HALF_HOUR, target=goal))
+        assert "interval 0 spans 785 to 1000222459 arrivals" in message
+        assert f"{counts.MAX_GRID_FLOATS:,} probabilities" in message
+
+    def test_agents_above_the_limit_are_refused(self) -> None:
+        with pytest.raises(StaffingError, match=r"agents\[0\] = 2000001.0; allowed: .* 2000000"):
+            evaluate_staffing(
+                np.full((3, 1), 30.0), 2_000_001, interval_seconds=900, target=WORKED_15
+            )

@@ -159,7 +159,7 @@ class TestWeekdayMean:
 
 class TestNegBinLaw:
     def test_crps_matches_the_published_value(self) -> None:
-        # shared/REFERENCE_VALUES.md [R]: negative binomial CRPS (y=2, n=7, p=0.8) = 0.3834322.
+        # ../shared/REFERENCE_VALUES.md [R]: negative binomial CRPS (y=2, n=7, p=0.8) = 0.3834322.
         law = NegBinLaw(mu=np.array([7 * 0.2 / 0.8]), size=np.array([7.0]))
         assert law.crps(np.array([2]))[0] == pytest.approx(0.3834322, abs=1e-7)
 

@@ -7,7 +7,7 @@ Sources cited beside the checks:
   2009 (CRPS for counts as a sum over k; non-randomised PIT and its histogram).
 - [GR07] Gneiting & Raftery, "Strictly proper scoring rules, prediction, and estimation",
   JASA 102(477), 2007 (CRPS kernel form E|X - y| - E|X - X'|/2, eq. 21; interval score, eq. 43).
-- [REF] /work/shared/REFERENCE_VALUES.md, "Scoring count forecasts"; values marked [R] there were
+- [REF] ../shared/REFERENCE_VALUES.md, "Scoring count forecasts"; values marked [R] there were
   recomputed with scipy/mpmath.
 """
 

@@ -386,3 +386,18 @@ def test_quantiles_monotone_and_intervals_nested(
         at = stats.poisson.cdf(k, lam).mean(axis=0)
         below = stats.poisson.cdf(k - 1, lam).mean(axis=0)
         assert np.all(at >= q - 1e-12) and np.all(below < q + 1e-12)
+
+
+@pytest.mark.parametrize("scale", [0.4, 6.0, 60.0, 400.0])
+def test_tail_probabilities_equal_the_mean_of_scipy_poisson_tails(scale: float) -> None:
+    """P(N >= k) is mean_d P(Poisson(lam_d) >= k), reference scipy.stats.poisson.sf per draw;
+    covers tails read off the quantile grid (grids from 0, tail >= 0.05) and the
+    incomplete-gamma path (small tails, grids anchored above 0)."""
+    rng = np.random.default_rng(17)
+    lam = scale * np.exp(0.4 * rng.standard_normal((300, 25)))
+    centre = int(scale)
+    counts = sorted({1, 2, max(1, centre // 2), centre + 1, 2 * centre + 3, 4 * centre + 10})
+    out = summarise(lam, levels=(0.8, 0.95), at_least=counts)
+    for k in counts:
+        expected = stats.poisson.sf(k - 1, lam).mean(axis=0)
+        np.testing.assert_allclose(out.at_least[k], expected, rtol=1e-12, atol=1e-300)

@@ -2,8 +2,8 @@
 
 References:
 - Counts in [a, b) of a time-inhomogeneous Poisson process are Poisson(integral of the rate)
-  (REFERENCE_VALUES.md, "Time-inhomogeneous Poisson process"); over posterior draws the count is
-  the mixture that models.prediction.windows.forecast summarises exactly.
+  (../shared/REFERENCE_VALUES.md, "Time-inhomogeneous Poisson process"); over posterior draws
+  the count is the mixture that models.prediction.windows.forecast summarises exactly.
 - Time-rescaling: given n arrivals, Lambda(t_i) / Lambda(end) are i.i.d. uniform; checked with
   scipy.stats.kstest against an integrated rate computed here from the weekly table through
   zoneinfo (independent of the project's bin grid).
@@ -23,6 +23,7 @@ from scipy import stats
 from models.exceptions import InputError, WindowError
 from models.prediction.simulate import simulate_arrivals, write_arrivals
 from models.prediction.windows import forecast
+from models.ratemodel.binning import OpeningHours
 from tests.conftest import synthetic_posterior
 
 TZ = "America/Chicago"
@@ -117,6 +118,66 @@ class TestTimes:
         c = simulate_arrivals(posterior, *window, replicates=3, seed=5)
         assert a.times.equals(b.times)
         assert not a.times.equals(c.times)
+
+
+class TestClosedTime:
+    HOURS = OpeningHours.parse("Mon-Fri 06:30-21:00; Sat-Sun 08:00-18:00")
+
+    def open_at(self, times: pd.DatetimeIndex) -> np.ndarray:
+        clock = times.tz_convert(TZ)
+        minute = np.asarray(clock.hour * 60 + clock.minute)
+        weekday = np.asarray(clock.day_of_week) < 5
+        return np.where(
+            weekday, (minute >= 390) & (minute < 1260), (minute >= 480) & (minute < 1080)
+        )
+
+    def test_100_replicates_over_a_week_with_closed_hours(self, weekly_table):
+        # The demo failure: closed bins integrated to -1e-13 and numpy's Poisson refused them.
+        posterior = synthetic_posterior(
+            weekly_table,
+            draws=200,
+            opening=self.HOURS,
+            latent_rho=0.6,
+            latent_sd=0.3,
+            dispersion=6.0,
+        )
+        start, end = local("2026-03-02T00:00"), local("2026-03-09T00:00")
+        arrivals = simulate_arrivals(posterior, start, end, replicates=100, seed=2)
+        assert arrivals.counts().size == 100
+        assert arrivals.counts().min() > 0
+        assert self.open_at(arrivals.times).all()  # never an arrival in closed time
+
+    def test_the_open_half_of_a_bin_gets_all_its_arrivals(self, weekly_table):
+        # The 06:00 bin opens at 06:30: every arrival of 06:00-07:00 lies in 06:30-07:00, and
+        # their number is Poisson(rate x 30 min) (REFERENCE_VALUES.md, "Time-inhomogeneous
+        # Poisson process"): mean within 4 standard errors.
+        posterior = synthetic_posterior(weekly_table, opening=self.HOURS)
+        start, end = local("2026-03-02T06:00"), local("2026-03-02T07:00")
+        arrivals = simulate_arrivals(posterior, start, end, replicates=4000, seed=5)
+        assert arrivals.times.min() >= local("2026-03-02T06:30")
+        mu = weekly_table[0, 6] * 0.5
+        assert abs(arrivals.counts().mean() - mu) < 4 * np.sqrt(mu / 4000)
+
+    def test_an_overnight_desk_across_the_end_of_dst_is_simulated_and_written(self, tmp_path):
+        # Saturday 31 October to Sunday 1 November 2026 in Chicago: the night 18:00-08:00 lasts
+        # 15 hours and 01:00-02:00 happens twice (common practice, no source). The repeated hour
+        # used to break the output (a local floor there is ambiguous).
+        posterior = synthetic_posterior(
+            np.full((7, 24), 4.0),
+            opening=OpeningHours.parse("daily 18:00-08:00"),
+            first_day=dt.date(2026, 10, 1),
+            n_days=28,
+        )
+        start, end = local("2026-10-31T12:00"), local("2026-11-01T12:00")
+        arrivals = simulate_arrivals(posterior, start, end, replicates=400, seed=4)
+        mu = 4.0 * 15  # Poisson(rate x open hours): mean within 4 standard errors
+        assert abs(arrivals.counts().mean() - mu) < 4 * np.sqrt(mu / 400)
+        frame = pd.read_csv(write_arrivals(arrivals, tmp_path / "night.csv"))
+        repeated = frame["timestamp"][frame["timestamp"].str.startswith("2026-11-01T01:")]
+        assert {text[-6:] for text in repeated} == {"-05:00", "-06:00"}
+        clock = pd.DatetimeIndex(arrivals.times).tz_convert(TZ)
+        minute = np.asarray(clock.hour * 60 + clock.minute)
+        assert np.all((minute >= 18 * 60) | (minute < 8 * 60))
 
 
 class TestFiles:

@@ -368,3 +368,200 @@ class TestSeasonAndShape:
         stray = dataclasses.replace(posterior, spec=posterior.spec.with_(annual_harmonics=0))
         with pytest.raises(CorruptArtefact, match="annual is present"):
             stray.check_shapes()
+
+
+def open_reference_integral(
+    table: np.ndarray, hours: OpeningHours, start: str, end: str, tz: str = CHICAGO
+) -> float:
+    """∫ λ(t) 1[open at t] dt by scipy.integrate.quad over every UTC quarter-hour, the rate and
+    the open/closed state both read off the local wall clock through zoneinfo (the rate of an
+    hour applies to its open minutes: rate x open minutes, by hand). Independent of the bins."""
+    zone = ZoneInfo(tz)
+    a = dt.datetime.fromisoformat(start).timestamp()
+    b = dt.datetime.fromisoformat(end).timestamp()
+
+    def rate_per_second(t: float) -> float:
+        local = dt.datetime.fromtimestamp(t, zone)
+        minute = local.hour * 60 + local.minute + local.second / 60
+        is_open = any(lo <= minute < hi for lo, hi in hours.spans[local.weekday()])
+        return float(table[local.weekday(), local.hour]) / 3600.0 if is_open else 0.0
+
+    cuts = np.unique(np.concatenate([[a, b], np.arange(np.ceil(a / 900) * 900, b, 900)]))
+    return sum(
+        integrate.quad(rate_per_second, lo, hi, limit=200)[0] for lo, hi in itertools.pairwise(cuts)
+    )
+
+
+class TestOpenPartOfABin:
+    """A bin the opening hours cut carries its rate on its open minutes only."""
+
+    HOURS = OpeningHours.parse("Mon-Fri 06:30-21:00; Sat-Sun 08:00-18:00")
+
+    def test_window_wholly_in_the_closed_half_hour_has_mean_zero_and_p0_one(
+        self, weekly_table
+    ) -> None:
+        posterior = synthetic_posterior(weekly_table, draws=50, opening=self.HOURS)
+        result = forecast(posterior, *windows(("2026-03-02T06:00-06:00", "2026-03-02T06:30-06:00")))
+        assert result.summary.mean[0] == 0.0
+        assert result.summary.p_zero[0] == 1.0
+        assert result.summary.intervals[0.95][1][0] == 0
+
+    def test_closed_half_hour_against_the_hand_integral(self, weekly_table) -> None:
+        # By hand: the 06:00 bin is open 30 minutes, at weekly_table[Mon, 6] arrivals per hour.
+        # The window 06:00-06:45 holds 15 open minutes, 06:15-07:00 all 30, 06:00-06:30 none.
+        posterior = synthetic_posterior(weekly_table, opening=self.HOURS)
+        rate = weekly_table[0, 6]
+        lam = expected_counts(
+            posterior,
+            *windows(
+                ("2026-03-02T06:00-06:00", "2026-03-02T06:45-06:00"),
+                ("2026-03-02T06:15-06:00", "2026-03-02T07:00-06:00"),
+                ("2026-03-02T06:00-06:00", "2026-03-02T06:30-06:00"),
+                ("2026-03-02T06:40-06:00", "2026-03-02T06:50-06:00"),
+            ),
+        )[0]
+        np.testing.assert_allclose(lam, [rate * 15 / 60, rate * 30 / 60, 0.0, rate * 10 / 60])
+        # The same by scipy.integrate.quad of rate x open indicator (independent of the bins).
+        assert lam[0] == pytest.approx(
+            open_reference_integral(
+                weekly_table, self.HOURS, "2026-03-02T06:00-06:00", "2026-03-02T06:45-06:00"
+            ),
+            rel=1e-6,
+        )
+
+    def test_straddling_window_p0_is_the_poisson_of_its_open_part(self, weekly_table) -> None:
+        # One draw: the count is Poisson(rate x 15/60), checked against scipy.stats.poisson
+        # (rel 1e-6: the stored rates are float32).
+        posterior = synthetic_posterior(weekly_table, opening=self.HOURS)
+        result = forecast(posterior, *windows(("2026-03-02T05:00-06:00", "2026-03-02T06:45-06:00")))
+        mu = weekly_table[0, 6] * 15 / 60
+        assert result.summary.p_zero[0] == pytest.approx(stats.poisson.pmf(0, mu), rel=1e-6)
+
+    @pytest.mark.parametrize(
+        ("start", "end"),
+        [
+            ("2026-03-02T06:10-06:00", "2026-03-02T08:20-06:00"),  # starts before the opening
+            ("2026-03-02T06:40-06:00", "2026-03-02T07:10-06:00"),
+            ("2026-03-06T21:05-06:00", "2026-03-07T07:55-06:00"),  # Fri close to Sat opening
+            ("2026-03-07T17:20-06:00", "2026-03-08T08:50-05:00"),  # across the start of DST
+        ],
+    )
+    def test_partial_bins_match_quad_of_rate_times_open(self, weekly_table, start, end) -> None:
+        hours = OpeningHours.parse("Mon-Fri 06:30-21:15; Sat-Sun 07:45-17:30")
+        posterior = synthetic_posterior(weekly_table, opening=hours)
+        lam = expected_counts(posterior, *windows((start, end)))[0, 0]
+        assert lam == pytest.approx(
+            open_reference_integral(weekly_table, hours, start, end), rel=1e-6
+        )
+
+    def test_a_week_of_closed_bins_never_integrates_below_zero(self) -> None:
+        # The demo failure: closed bins summed to -1.4e-14 and the mixture refused the window.
+        rng = np.random.default_rng(3)
+        table = np.exp(rng.normal(1.5, 1.0, (7, 48)))
+        posterior = synthetic_posterior(
+            table,
+            bin_minutes=30,
+            draws=200,
+            opening=self.HOURS,
+            latent_rho=0.6,
+            latent_sd=0.3,
+            latent_last=0.2,
+            dispersion=8.0,
+        )
+        for step in ("15min", "30min", "1h"):
+            starts, ends = split_range(
+                pd.Timestamp("2026-03-02T00:00", tz=CHICAGO),
+                pd.Timestamp("2026-03-09T00:00", tz=CHICAGO),
+                parse_step(step),
+            )
+            lam = expected_counts(posterior, starts, ends)
+            assert lam.min() >= 0.0
+            local = starts.tz_convert(CHICAGO)
+            minute = local.hour * 60 + local.minute
+            weekday = local.day_of_week < 5
+            closed = np.where(weekday, minute < 6 * 60, minute < 8 * 60)
+            assert np.all(lam[:, closed] == 0.0)  # exactly zero, not a rounding residue
+            assert forecast(posterior, starts, ends).summary.p_zero[closed].min() == 1.0
+
+    def test_always_open_is_the_same_as_no_opening_hours(self, weekly_table) -> None:
+        pairs = [("2026-03-02T05:10-06:00", "2026-03-04T08:20-06:00")]
+        always = synthetic_posterior(weekly_table, opening=OpeningHours.parse("always"))
+        plain = synthetic_posterior(weekly_table)
+        np.testing.assert_array_equal(
+            expected_counts(always, *windows(*pairs)), expected_counts(plain, *windows(*pairs))
+        )
+
+
+class TestOvernightHours:
+    # US daylight saving 2026: starts Sun 8 March 02:00, ends Sun 1 November 02:00 (common
+    # practice, no source; the reference integral reads the clock through zoneinfo).
+    HOURS = OpeningHours.parse("Sat 18:00-08:00")
+    FLAT = np.full((7, 24), 6.0)
+
+    def test_night_across_the_start_of_dst_has_13_open_hours(self) -> None:
+        posterior = synthetic_posterior(self.FLAT, opening=self.HOURS)
+        start, end = "2026-03-07T18:00-06:00", "2026-03-08T08:00-05:00"
+        lam = expected_counts(posterior, *windows((start, end)))[0, 0]
+        assert lam == pytest.approx(6.0 * 13)  # 18:00 to 08:00 is 13 hours that night
+        assert lam == pytest.approx(
+            open_reference_integral(self.FLAT, self.HOURS, start, end), rel=1e-6
+        )
+
+    def test_night_across_the_end_of_dst_has_15_open_hours(self) -> None:
+        posterior = synthetic_posterior(
+            self.FLAT, opening=self.HOURS, first_day=dt.date(2026, 10, 1), n_days=28
+        )
+        start, end = "2026-10-31T18:00-05:00", "2026-11-01T08:00-06:00"
+        lam = expected_counts(posterior, *windows((start, end)))[0, 0]
+        assert lam == pytest.approx(6.0 * 15)
+        assert lam == pytest.approx(
+            open_reference_integral(self.FLAT, self.HOURS, start, end), rel=1e-6
+        )
+
+    def test_the_rest_of_the_week_is_closed(self) -> None:
+        posterior = synthetic_posterior(self.FLAT, opening=self.HOURS)
+        lam = expected_counts(
+            posterior,
+            *windows(
+                ("2026-03-08T08:00-05:00", "2026-03-14T18:00-05:00"),  # Sun 08:00 to Sat 18:00
+                ("2026-03-07T17:30-06:00", "2026-03-07T18:30-06:00"),  # opens at 18:00
+            ),
+        )[0]
+        assert lam[0] == 0.0
+        assert lam[1] == pytest.approx(3.0)
+
+
+class TestStrictInstants:
+    @pytest.mark.parametrize(
+        "text",
+        [
+            "05/04/2026",
+            "27/04/2026",
+            "April 27 2026 9am",
+            "2026-4-27",
+            "20260427T0900",
+            "2026-04-27T9:00",
+            "tomorrow",
+            "",
+        ],
+    )
+    def test_forms_other_than_iso_8601_are_refused_with_the_accepted_forms(self, text: str) -> None:
+        with pytest.raises(WindowError, match=r"is not an ISO 8601 date-time; accepted: ISO 8601"):
+            parse_instant(text, tz=CHICAGO)
+
+    @pytest.mark.parametrize(
+        ("text", "expected"),
+        [
+            ("2026-04-27", "2026-04-27T00:00:00-05:00"),
+            ("2026-04-27T09:00", "2026-04-27T09:00:00-05:00"),
+            ("2026-04-27 09:00:30", "2026-04-27T09:00:30-05:00"),
+            ("2026-04-27T09:00:30.5-0300", "2026-04-27T09:00:30.500000-03:00"),
+            ("2026-04-27T14:00Z", "2026-04-27T14:00:00+00:00"),
+        ],
+    )
+    def test_iso_8601_forms_are_read(self, text: str, expected: str) -> None:
+        assert parse_instant(text, tz=CHICAGO).isoformat() == expected
+
+    def test_an_impossible_date_is_refused(self) -> None:
+        with pytest.raises(WindowError, match="not a valid calendar date"):
+            parse_instant("2026-02-30T09:00", tz=CHICAGO)

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import csv
+import io
 import json
 from collections.abc import Iterator
 from pathlib import Path
@@ -15,17 +17,8 @@ from models.capacity.staffing import STAFFING_CAUTION, ServiceTarget
 from models.store import FileStore
 from service.main import create_app
 from service.queries.capacity import staffing_document, update_document
-from tests.service.api.support import TZ, hump_table, publish, settings
+from tests.service.api.support import PLAN, TZ, hump_table, publish, settings
 
-PLAN: dict[str, Any] = {
-    "start": "2026-03-03T08:00",
-    "end": "2026-03-03T10:00",
-    "tz": TZ,
-    "step": "30min",
-    "handle_time_seconds": 240,
-    "answer_within_seconds": 20,
-    "share": 0.8,
-}
 OBSERVED: dict[str, Any] = {
     "observed": [{"start": "2026-03-03T08:00", "end": "2026-03-03T10:00", "count": 300}],
     "start": "2026-03-03T10:00",
@@ -132,3 +125,58 @@ class TestIntraday:
         response = client.post("/v1/series/desk-a/intraday", json=body)
         assert response.status_code == 422
         assert response.json()["field"] == "observed[0].start"
+
+
+def csv_rows(response: Any) -> list[dict[str, str]]:
+    """Rows of a plain CSV answer: a header line and data lines, nothing else."""
+    assert response.status_code == 200, response.text
+    assert response.headers["content-type"].startswith("text/csv")
+    assert not any(line.startswith("#") for line in response.text.splitlines())
+    return list(csv.DictReader(io.StringIO(response.text)))
+
+
+class TestCsv:
+    def test_staffing_csv_has_the_json_values_under_the_json_names(self, client) -> None:
+        body = {**PLAN, "agents": [20]}
+        as_json = client.post("/v1/series/desk-a/staffing", json=body).json()
+        response = client.post(
+            "/v1/series/desk-a/staffing", json=body, headers={"Accept": "text/csv"}
+        )
+        rows = csv_rows(response)
+        assert response.headers["x-caution"] == STAFFING_CAUTION
+        assert len(rows) == len(as_json["intervals"]) == 4
+        for row, interval in zip(rows, as_json["intervals"], strict=True):
+            assert row["start"] == interval["start"]
+            assert int(row["quantile_arrivals"]) == interval["quantile_arrivals"]
+            for policy in ("plug_in", "assured", "given"):
+                for name, number in interval[policy].items():
+                    assert float(row[f"{policy}_{name}"]) == pytest.approx(number, abs=1e-6)
+
+    def test_intraday_csv_has_before_and_after(self, client) -> None:
+        as_json = client.post("/v1/series/desk-a/intraday", json=OBSERVED).json()
+        response = client.post(
+            "/v1/series/desk-a/intraday", json=OBSERVED, headers={"Accept": "text/csv"}
+        )
+        rows = csv_rows(response)
+        assert [float(r["before_mean"]) for r in rows] == [
+            round(w["before"]["mean"], 3) for w in as_json["windows"]
+        ]
+        assert [float(r["mean"]) for r in rows] == [round(w["mean"], 3) for w in as_json["windows"]]
+
+    def test_neither_json_nor_csv_is_406(self, client) -> None:
+        response = client.post(
+            "/v1/series/desk-a/staffing", json=PLAN, headers={"Accept": "application/xml"}
+        )
+        assert response.status_code == 406
+
+
+class TestIntradayDefaults:
+    def test_start_end_and_step_default_as_in_the_cli(self, client) -> None:
+        """Default: from the end of the observations to the next local midnight, by one bin."""
+        explicit = client.post("/v1/series/desk-a/intraday", json=OBSERVED | {"step": None,
+                               "start": "2026-03-03T10:00", "end": "2026-03-04T00:00"}).json()  # fmt: skip
+        body = {k: v for k, v in OBSERVED.items() if k not in ("start", "end", "step")}
+        implied = client.post("/v1/series/desk-a/intraday", json=body)
+        assert implied.status_code == 200, implied.text
+        assert implied.json() == explicit
+        assert len(explicit["windows"]) == 14  # 10:00 to midnight in hours

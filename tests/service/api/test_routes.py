@@ -9,10 +9,14 @@ from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+import pandas as pd
 import pytest
 from fastapi.testclient import TestClient
+from scipy import stats
 
 from models.store import FileStore
+from service.api.work import INLINE_CELLS
 from service.main import create_app
 from tests.service.api.support import ADMIN, READER, TZ, hump_table, publish, settings
 
@@ -117,6 +121,8 @@ class TestSeriesCatalogue:
 
 class TestForecast:
     def test_answers_each_window_and_their_total(self, client: TestClient) -> None:
+        """Every draw of desk-a has the same hourly rates: each window, and the total of the
+        two, is Poisson with the rate integrated over it (reference: scipy.stats.poisson)."""
         body = forecast(
             client,
             {
@@ -132,15 +138,36 @@ class TestForecast:
             "2026-03-03T09:00:00-06:00",
             "2026-03-03T10:00:00-06:00",
         ]
-        for window in body["windows"]:
-            q = window["quantiles"]
-            assert q["0.1"] <= q["0.5"] <= q["0.9"]
-            assert window["at_least"]["0"] == pytest.approx(1.0)
-            lo, hi = window["intervals"]["0.95"]
-            assert lo <= q["0.5"] <= hi
-        # Expectation is linear: the total's mean is the sum of the windows' means.
-        assert body["total"]["mean"] == pytest.approx(sum(w["mean"] for w in body["windows"]))
+        tuesday = hump_table()[1]  # 2026-03-03 is a Tuesday; rows run Monday..Sunday
+        means = [tuesday[9], tuesday[10] + 0.5 * tuesday[11]]  # 09-10; 10-11 and half of 11-12
+        for row, mu in [*zip(body["windows"], means, strict=True), (body["total"], sum(means))]:
+            poisson = stats.poisson(mu)
+            # float32 storage of the log rates: about 1e-7 relative.
+            assert row["mean"] == pytest.approx(mu, rel=1e-6)
+            assert row["sd"] == pytest.approx(np.sqrt(mu), rel=1e-6)
+            assert row["p_zero"] == pytest.approx(poisson.pmf(0), rel=1e-5)
+            assert row["quantiles"] == {f"{q:g}": int(poisson.ppf(q)) for q in (0.1, 0.5, 0.9)}
+            assert row["intervals"] == {
+                f"{level:g}": [int(poisson.ppf((1 - level) / 2)), int(poisson.ppf((1 + level) / 2))]
+                for level in (0.8, 0.95)
+            }
+            assert row["at_least"]["0"] == 1.0
+            assert row["at_least"]["5"] == pytest.approx(poisson.sf(4), rel=1e-5)
         assert "probabilistic" in body["caution"]
+
+    def test_csv_when_asked_with_the_total_as_the_last_row(self, client: TestClient) -> None:
+        body = {"windows": [ONE_HOUR, {"start": "2026-03-03T10:00", "end": "2026-03-03T11:00"}],
+                "tz": TZ, "total": True}  # fmt: skip
+        as_json = forecast(client, body).json()
+        response = client.post(
+            "/v1/series/desk-a/forecast", json=body, headers={"Accept": "text/csv"}
+        )
+        assert response.headers["content-type"].startswith("text/csv")
+        assert "probabilistic" in response.headers["x-caution"]
+        rows = list(csv.DictReader(io.StringIO(response.text)))
+        assert [r["row"] for r in rows] == ["window", "window", "total"]
+        means = [w["mean"] for w in as_json["windows"]] + [as_json["total"]["mean"]]
+        assert [float(r["mean"]) for r in rows] == [round(m, 3) for m in means]
 
     def test_offset_and_local_time_with_zone_agree(self, client: TestClient) -> None:
         local = forecast(client, {"windows": [ONE_HOUR], "tz": TZ}).json()
@@ -227,13 +254,15 @@ class TestForecast:
         )
         assert body["value"] == "next tuesday"
 
-    def test_malformed_json_is_422(self, client: TestClient) -> None:
+    def test_malformed_json_is_a_body_error_not_a_field(self, client: TestClient) -> None:
         response = client.post(
             "/v1/series/desk-a/forecast",
             content=b'{"windows": [',
             headers={"Content-Type": "application/json"},
         )
-        assert response.status_code == 422
+        body = assert_error(response, 422, field="body", code="invalid_body")
+        assert body["problems"][0]["field"] == "body"
+        assert "not valid JSON" in body["message"] and "character 13" in body["message"]
 
     def test_unknown_series_is_404(self, client: TestClient) -> None:
         assert_error(
@@ -306,6 +335,25 @@ class TestBands:
             assert int(row["lo_0.95"]) == window["intervals"]["0.95"][0]
             assert float(row["p_at_least_3"]) == round(window["at_least"]["3"], 4)
 
+    def test_total_over_the_range_and_its_csv_row(self, client: TestClient) -> None:
+        params = self.query(step="6h", total="true")
+        as_json = client.get("/v1/series/desk-a/bands", params=params).json()
+        # Expectation is linear: the total's mean is the sum of the windows' means.
+        assert as_json["total"]["mean"] == pytest.approx(
+            sum(w["mean"] for w in as_json["windows"]), rel=1e-9
+        )
+        response = client.get(
+            "/v1/series/desk-a/bands", params=params, headers={"Accept": "text/csv"}
+        )
+        rows = list(csv.DictReader(io.StringIO(response.text)))
+        assert [r["row"] for r in rows] == ["window"] * 4 + ["total"]
+        assert float(rows[-1]["mean"]) == round(as_json["total"]["mean"], 3)
+        assert (rows[-1]["start"], rows[-1]["end"]) == (rows[0]["start"], rows[-2]["end"])
+
+    def test_without_total_the_json_has_no_total_key(self, client: TestClient) -> None:
+        body = client.get("/v1/series/desk-a/bands", params=self.query(step="6h")).json()
+        assert "total" not in body and "at_least" not in body["windows"][0]
+
     def test_accept_q_values_are_honoured(self, client: TestClient) -> None:
         response = client.get(
             "/v1/series/desk-a/bands",
@@ -351,6 +399,32 @@ class TestBands:
             client.get("/v1/series/desk-a/bands", params=params), 422, field="start"
         )
         assert "required" in body["allowed"]
+
+
+class TestLongRanges:
+    def test_400_days_at_one_day(self, tmp_path: Path) -> None:
+        """400 windows of 24 hours. Each mean is the hourly rates summed over the hours the
+        window covers (a hand integral). A step is a fixed length: after Chicago's clocks move
+        forward on 2026-03-08 (common practice, no source) the windows start at 01:00."""
+        publish(FileStore(tmp_path), "desk-a", hump_table(), draws=20)
+        params = {"start": "2026-03-02", "end": "2027-04-06", "step": "1d", "tz": TZ}
+        with TestClient(create_app(settings(tmp_path))) as long_client:
+            body = long_client.get("/v1/series/desk-a/bands", params=params).json()
+        windows = body["windows"]
+        assert len(windows) == 400
+        rates = hump_table()  # rows Monday..Sunday, columns local hours
+        for window in windows[:6]:  # Monday 2026-03-02 to Saturday 2026-03-07
+            weekday = pd.Timestamp(window["start"]).weekday()
+            assert window["mean"] == pytest.approx(rates[weekday].sum(), rel=1e-6)
+        spring = windows[6]
+        assert (spring["start"], spring["end"]) == (
+            "2026-03-08T00:00:00-06:00",
+            "2026-03-09T01:00:00-05:00",
+        )
+        # Sunday without its 02:00 hour (it does not exist), then Monday 00:00-01:00.
+        expected = rates[6].sum() - rates[6][2] + rates[0][0]
+        assert spring["mean"] == pytest.approx(expected, rel=1e-6)
+        assert windows[7]["start"] == "2026-03-09T01:00:00-05:00"
 
 
 class TestBatch:
@@ -514,10 +588,12 @@ class TestAtomicReload:
         import httpx
 
         store = FileStore(tmp_path)
-        publish(store, "desk-a", hump_table(1.0), draws=10)
+        # 60 windows of 20 minutes touch 2 hourly bins each: with this many draws the estimate
+        # is above INLINE_CELLS, so the answer is computed in a work thread while reloads run
+        # in another.
+        draws = INLINE_CELLS // (60 * 2) + 1
+        publish(store, "desk-a", hump_table(1.0), draws=draws)
         app = create_app(settings(tmp_path, admin_token=ADMIN))
-        # 60 windows: more than HEAVY_WINDOWS, so the answer is computed in a worker thread
-        # while reloads run in another.
         windows = (
             [
                 {"start": f"2026-03-03T{h:02d}:00", "end": f"2026-03-03T{h:02d}:20"}
@@ -557,7 +633,7 @@ class TestAtomicReload:
                 async def republish() -> None:
                     for scale in (2.0, 1.0, 2.0, 1.0):
                         await asyncio.to_thread(
-                            publish, store, "desk-a", hump_table(scale), draws=10
+                            publish, store, "desk-a", hump_table(scale), draws=draws
                         )
                         await http.post(
                             "/v1/admin/reload", headers={"Authorization": f"Bearer {ADMIN}"}

@@ -7,7 +7,6 @@ Format rules checked here are those of the Prometheus "Exposition formats" page,
 
 from __future__ import annotations
 
-import re
 from collections.abc import Iterator
 from pathlib import Path
 
@@ -18,42 +17,16 @@ from models.store import FileStore
 from service.api.registry import Registry
 from service.api.telemetry import LATENCY_BUCKETS, Metrics
 from service.main import create_app
-from tests.service.api.support import ADMIN, TZ, flip_byte, hump_table, publish, settings
-
-SAMPLE = re.compile(
-    r'^(?P<name>[a-zA-Z_:][a-zA-Z0-9_:]*)(?P<labels>\{([a-zA-Z_][a-zA-Z0-9_]*="([^"\\]|\\.)*",?)*\})?'
-    r" (?P<value>[-+]?([0-9.]+([eE][-+]?[0-9]+)?|Inf|NaN))$"
+from tests.service.api.support import (
+    ADMIN,
+    TZ,
+    flip_byte,
+    hump_table,
+    parse,
+    publish,
+    settings,
+    value,
 )
-LABEL = re.compile(r'([a-zA-Z_][a-zA-Z0-9_]*)="((?:[^"\\]|\\.)*)"')
-
-
-def parse(text: str) -> list[tuple[str, dict[str, str], float]]:
-    """Samples of an exposition, checking each line's syntax and that TYPE precedes samples."""
-    typed: set[str] = set()
-    samples = []
-    assert text.endswith("\n")
-    for line in text.splitlines():
-        if line.startswith("# TYPE "):
-            typed.add(line.split()[2])
-            continue
-        if line.startswith("# HELP "):
-            continue
-        match = SAMPLE.match(line)
-        assert match, f"not a sample line: {line!r}"
-        name = match["name"]
-        family = re.sub(r"_(bucket|sum|count)$", "", name)
-        assert name in typed or family in typed, f"{name} has no TYPE line before it"
-        labels = dict(LABEL.findall(match["labels"] or ""))
-        samples.append((name, labels, float(match["value"])))
-    return samples
-
-
-def value(samples: list[tuple[str, dict[str, str], float]], name: str, **labels: str) -> float:
-    found = [
-        v for n, lab, v in samples if n == name and all(lab.get(k) == x for k, x in labels.items())
-    ]
-    assert len(found) == 1, f"{name} {labels}: {found}"
-    return found[0]
 
 
 @pytest.fixture
@@ -116,10 +89,12 @@ def test_served_and_refused_versions_are_exposed(client: TestClient, store_path:
 
 def test_label_values_are_escaped() -> None:
     from service.api.telemetry import render
+    from service.api.work import WorkPool
 
     metrics = Metrics()
     metrics.observe("GET", 'odd"route\\with\nbreak', 200, 0.01)
-    text = render(metrics, Registry(FileStore("/nonexistent-store-for-test")))
+    pool = WorkPool(threads=1, queue=0, budget=1, deadline_seconds=1.0)
+    text = render(metrics, Registry(FileStore("/nonexistent-store-for-test")), pool)
     samples = parse(text)
     routes = {lab["route"] for _, lab, _ in samples if "route" in lab}
     assert routes == {'odd\\"route\\\\with\\nbreak'}

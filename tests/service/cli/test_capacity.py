@@ -1,7 +1,8 @@
 """``ratecast staff``, ``update`` and ``simulate`` through main(), on a store of synthetic series.
 
 The numbers are checked against direct library calls (themselves tested against published values
-in tests/models/test_staffing.py and test_intraday.py); here the point is that the commands pass
+in tests/models/capacity/test_staffing.py and tests/models/prediction/test_intraday.py, or
+recomputed here from published formulas); here the point is that the commands pass
 the right inputs, print every format, show the caution and fail with exit 2 naming bad values.
 """
 
@@ -10,11 +11,13 @@ from __future__ import annotations
 import csv
 import io
 import json
+import math
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 import pytest
+from scipy import stats
 
 from models.capacity.staffing import STAFFING_CAUTION, ServiceTarget, staff_intervals
 from models.prediction.intraday import update_forecast
@@ -66,6 +69,19 @@ def stamps(*texts: str) -> pd.DatetimeIndex:
     return pd.DatetimeIndex([pd.Timestamp(t, tz=TZ) for t in texts]).tz_convert("UTC")
 
 
+def erlang_c_service_level(arrivals: int, agents: int) -> float:
+    """SL(20 s) of ``arrivals`` per 30 minutes at AHT 240 s, written out from the formulas in
+    ../shared/REFERENCE_VALUES.md ("Queueing"); 0 when the queue is unstable."""
+    load = arrivals / 1800 * 240
+    if agents <= load:
+        return 0.0
+    blocking = 1.0
+    for k in range(1, agents + 1):
+        blocking = load * blocking / (k + load * blocking)
+    wait = agents * blocking / (agents - load * (1 - blocking))
+    return 1.0 - wait * math.exp(-(agents - load) * 20 / 240)
+
+
 class TestStaff:
     def test_json_equals_the_library_call(self, capsys, store) -> None:
         code, out, _ = run(
@@ -109,12 +125,31 @@ class TestStaff:
         assert "safety-critical settings" in out
         assert "advisory" in out
 
-    def test_csv_has_one_row_per_interval(self, capsys, store) -> None:
-        _, out, _ = run(capsys, store, *STAFF, "--format", "csv", "--agents", "12")
+    def test_csv_miss_probabilities_match_an_independent_erlang_c_computation(
+        self, capsys, store
+    ) -> None:
+        # Staff each interval with its plug-in agents (a miss probability well inside (0, 1)),
+        # then recompute P(SL(K, N) < 0.8) here: Erlang B by its recursion and Erlang C and the
+        # service level from it (formulas in ../shared/REFERENCE_VALUES.md, "Queueing"; Tijms,
+        # A First Course in Stochastic Models, 2003, sec. 5.3), K the Poisson mixture over the
+        # posterior draws (scipy.stats.poisson). SL falls as K grows, so the target is missed
+        # exactly when K exceeds the largest count k* that still meets it.
+        _, out, _ = run(capsys, store, *STAFF, "--format", "json")
+        plug_in = [r["plug_in"]["agents"] for r in json.loads(out)["intervals"]]
+        agents = ",".join(map(str, plug_in))
+        _, out, _ = run(capsys, store, *STAFF, "--format", "csv", "--agents", agents)
         rows = list(csv.DictReader(line for line in io.StringIO(out) if not line.startswith("#")))
         assert len(rows) == 8
-        assert {r["given_agents"] for r in rows} == {"12"}
-        assert float(rows[0]["given_miss_probability"]) <= 1.0
+        assert [int(r["given_agents"]) for r in rows] == plug_in
+        posterior = FileStore(store).load("desk").posterior
+        starts = stamps(*(f"2026-03-03T{h:02d}:{m:02d}" for h in range(8, 12) for m in (0, 30)))
+        lam = expected_counts(posterior, starts, starts + pd.Timedelta(minutes=30))
+        for i, (row, n) in enumerate(zip(rows, plug_in, strict=True)):
+            k_star = max(k for k in range(1, 2000) if erlang_c_service_level(k, n) >= 0.8)
+            miss = stats.poisson.sf(k_star, lam[:, i]).mean()
+            assert 0.05 < miss < 0.95
+            assert float(row["given_miss_probability"]) == pytest.approx(miss, abs=2e-6)
+            assert float(row["plug_in_miss_probability"]) == pytest.approx(miss, abs=2e-6)
 
     def test_a_given_staffing_is_evaluated(self, capsys, store) -> None:
         agents = ",".join(["30"] * 8)
@@ -218,7 +253,17 @@ class TestSimulate:
         assert code == 0
         table = pd.read_csv(out_file) if suffix == ".csv" else pd.read_parquet(out_file)
         assert f"wrote {len(table)} arrivals in 4 replicate(s)" in out
-        assert set(table["replicate"]) <= {0, 1, 2, 3}
+        assert set(table["replicate"]) == {0, 1, 2, 3}
+        times = pd.DatetimeIndex(pd.to_datetime(table["timestamp"], utc=True))
+        window = stamps("2026-03-03T09:00", "2026-03-03T10:00")
+        assert ((times >= window[0]) & (times < window[1])).all()
+        # Each replicate's count follows the predictive Poisson mixture over the draws' window
+        # integrals (Lewis & Shedler 1979; ../shared/REFERENCE_VALUES.md, "Time-inhomogeneous
+        # Poisson process"): mean E[lam], variance E[lam] + Var(lam). The total of the four
+        # independent replicates must lie within 4 sd of four times that mean.
+        lam = expected_counts(FileStore(store).load("desk").posterior, window[:1], window[1:])[:, 0]
+        sd = np.sqrt(4 * (lam.mean() + lam.var()))
+        assert abs(len(table) - 4 * lam.mean()) < 4 * sd
 
     def test_bad_output_name_exits_2(self, capsys, store, tmp_path) -> None:
         code, _, err = run(
