@@ -14,7 +14,11 @@ module imports no PyMC.
 
 from __future__ import annotations
 
+import functools
+import warnings
+from collections.abc import Callable
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
@@ -29,6 +33,21 @@ __all__ = [
     "excess_scatter",
     "interaction_signal",
 ]
+
+
+def _empty_cells_allowed(estimate: Callable[..., Any]) -> Callable[..., Any]:
+    """Cells (or whole weeks) never observed are NaN columns by design; numpy's notes about the
+    mean and variance of an all-NaN slice say nothing the estimate does not already handle."""
+
+    @functools.wraps(estimate)
+    def quiet(*args: Any, **kwargs: Any) -> Any:
+        with warnings.catch_warnings():
+            warnings.filterwarnings("ignore", "Mean of empty slice", RuntimeWarning)
+            warnings.filterwarnings("ignore", "Degrees of freedom <= 0", RuntimeWarning)
+            return estimate(*args, **kwargs)
+
+    return quiet
+
 
 #: Centred when the estimated spread of a block is at least this many times the standard error
 #: with which the data measure one member (common practice, no source: the centred form pays
@@ -77,6 +96,7 @@ def _cell_weeks(data: ModelData, slots: int) -> tuple[np.ndarray, np.ndarray]:
     return counts, exposure
 
 
+@_empty_cells_allowed
 def interaction_signal(data: ModelData, slots: int) -> tuple[float, float]:
     """Estimated sd of the day-of-week x slot interaction on the log rate, and the typical
     standard error of one cell's log rate, from the history.
@@ -113,6 +133,7 @@ def interaction_signal(data: ModelData, slots: int) -> tuple[float, float]:
     return float(np.sqrt(signal)), float(np.sqrt(np.mean(noise)))
 
 
+@_empty_cells_allowed
 def excess_scatter(data: ModelData, slots: int) -> float:
     """Median over weekly cells of ``(variance - mean) / mean`` of the counts across weeks: 0
     for Poisson counts, ``mu / k`` for negative binomial ones (the latent daily path adds to it)."""
@@ -129,6 +150,7 @@ def excess_scatter(data: ModelData, slots: int) -> float:
     return float(np.nanmedian(ratio[mean > 0])) if np.any(mean > 0) else 0.0
 
 
+@_empty_cells_allowed
 def dispersion_signal(data: ModelData, slots: int) -> tuple[float, float]:
     """Estimated sd across slots of the log coefficient of variation of the bin noise, and the
     typical standard error of one slot's value, from the history.
