@@ -355,32 +355,47 @@ def batch(base: str, pid: int, args: argparse.Namespace) -> None:
     )
 
 
+def _workers(pid: int) -> list[int]:
+    """The worker processes of the uvicorn supervisor ``pid`` (not multiprocessing's helpers)."""
+    children = [int(p) for p in Path(f"/proc/{pid}/task/{pid}/children").read_text().split()]
+    return [c for c in children if b"spawn_main" in Path(f"/proc/{c}/cmdline").read_bytes()]
+
+
+def _memory_lines(workers: list[int]) -> list[str]:
+    lines = []
+    for child in workers:
+        roll = rollup_kb(child)
+        shared = roll.get("Shared_Clean", 0) + roll.get("Shared_Dirty", 0)
+        private = roll.get("Private_Clean", 0) + roll.get("Private_Dirty", 0)
+        lines.append(
+            f"    worker pid {child}: RSS {roll['Rss'] / 1024:.0f} MiB (shared {shared / 1024:.0f},"
+            f" private {private / 1024:.0f}), PSS {roll['Pss'] / 1024:.0f} MiB"
+        )
+    return lines
+
+
 def worker_memory(args: argparse.Namespace, tmp: Path) -> None:
-    """RSS and PSS of each worker of ``--workers N`` on a store of ``--rss-series`` series."""
+    """RSS and PSS of each worker of ``--workers N`` on a store of ``--rss-series`` series,
+    once loaded and again after every series was queried through each worker."""
     store = tmp / "store-rss"
     build_store(store, draws=args.draws, series=args.rss_series - 1, series_draws=args.draws)
+    draws_mb = sum(f.stat().st_size for f in store.rglob("draws.npz")) / 2**20
+    print(
+        f"--workers {args.rss_workers} on {args.rss_series} series x {args.draws} draws (desk-a "
+        f"365 history days, the others 56; draws files {draws_mb:.0f} MiB on disk in all):"
+    )
     with server(store, tmp / "server-rss.log", workers=args.rss_workers) as (base, pid):
-        # Query every series once, as traffic would, so per-version caches are filled too.
-        with httpx.Client(base_url=base, timeout=60) as client:
-            names = [s["series"] for s in client.get("/v1/series").json()["series"]]
-            for _ in range(3 * args.rss_workers):
+        time.sleep(2.0)  # every worker loads the store before it answers; let the last finish
+        print("  loaded, before any forecast:")
+        print("\n".join(_memory_lines(_workers(pid))))
+        names = [s["series"] for s in httpx.get(base + "/v1/series", timeout=60).json()["series"]]
+        for _ in range(2 * args.rss_workers):
+            # A new connection each round, so the kernel spreads the rounds over the workers.
+            with httpx.Client(base_url=base, timeout=60) as client:
                 for name in names:
                     client.post(f"/v1/series/{name}/forecast", json=FORECAST_BODY)
-        children = [int(p) for p in Path(f"/proc/{pid}/task/{pid}/children").read_text().split()]
-        print(
-            f"--workers {args.rss_workers}, {len(names)} series x {args.draws} draws "
-            "(desk-a: 365 history days, the others 56), each series queried:"
-        )
-        for child in children:
-            roll = rollup_kb(child)
-            shared = roll.get("Shared_Clean", 0) + roll.get("Shared_Dirty", 0)
-            private = roll.get("Private_Clean", 0) + roll.get("Private_Dirty", 0)
-            print(
-                f"  worker pid {child}: RSS {roll['Rss'] / 1024:.0f} MiB (shared "
-                f"{shared / 1024:.0f}, private {private / 1024:.0f}), PSS {roll['Pss'] / 1024:.0f} MiB"
-            )
-        draws_mb = sum(f.stat().st_size for f in store.rglob("draws.npz")) / 2**20
-        print(f"  draws files on disk: {draws_mb:.0f} MiB in all")
+        print(f"  after {2 * args.rss_workers} rounds of one forecast per series:")
+        print("\n".join(_memory_lines(_workers(pid))))
 
 
 def main() -> None:
