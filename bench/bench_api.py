@@ -1,14 +1,22 @@
-"""Benchmark of the HTTP API: a real uvicorn process on loopback, a bounded async load.
+"""Benchmark of the HTTP API: a real ``ratecast serve`` on loopback, loaded by ``wrk``.
 
-Prints throughput and latency percentiles for the trivial health route (the framework's ceiling
-on this machine, measured in the same run) and a single-window forecast, then the time of a
-168-window bands call and of a streamed batch of many series x 24 windows with the server's peak
-memory (``VmHWM`` of ``/proc/<pid>/status``). Figures only, no pass/fail.
+The load generator must be faster than the server, or it measures itself: ``wrk`` (C, the Debian
+package ``wrk``) with 1 thread and 16 connections. Each round loads, one after the other and in
+the same run, the trivial health route (the framework's ceiling on this machine *now*), a
+single-window forecast (POST with a JSON body, through a small Lua script) and bands of 168 hourly
+windows (GET), and prints requests per second, p50/p99 latency and the ratio to health. Rounds are
+repeated because other work on the machine moves the figures; compare ratios within a round.
+Without ``wrk`` the load comes from an asyncio client on raw sockets (one process, pipelined
+keep-alive requests), whose own ceiling is printed beside it.
 
-The load generator (httpx) runs on the same machine and takes CPU from the server: on a small
-machine the health figure is partly the client's ceiling.
+Then, with httpx (one request, so the client is no bottleneck): a streamed batch of many series x
+24 windows (seconds, first record, the server's RSS), and optionally (``--rss-workers 2``) the
+memory of each worker process of ``--workers 2`` on a store of ``--rss-series`` series.
 
-Run: ``python bench/bench_api.py [--requests 2000 --concurrency 16 --batch-series 1000]``.
+The store is synthetic (negative-binomial posteriors from ``tests.conftest.synthetic_posterior``,
+no PyMC). Figures only, no pass/fail.
+
+Run: ``python bench/bench_api.py [--seconds 8 --rounds 2 --connections 16 --batch-series 1000]``.
 """
 
 from __future__ import annotations
@@ -18,15 +26,20 @@ import asyncio
 import datetime as dt
 import json
 import os
+import re
+import shutil
 import socket
 import statistics
 import subprocess
 import sys
 import tempfile
 import time
-from collections.abc import Callable
+from collections.abc import Iterator
+from contextlib import contextmanager
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
+from urllib.parse import urlencode
 
 import httpx
 import numpy as np
@@ -40,6 +53,17 @@ from tests.conftest import synthetic_posterior  # noqa: E402
 TZ = "America/Chicago"
 FIRST_DAY = dt.date(2025, 3, 3)
 MANIFEST: dict[str, Any] = {"diagnostics": {"ok": True}}
+HEALTH = "/v1/health/live"
+FORECAST = "/v1/series/desk-a/forecast"
+FORECAST_BODY = {
+    "windows": [{"start": "2026-03-10T09:00", "end": "2026-03-10T09:30"}],
+    "tz": TZ,
+    "quantiles": [0.5],
+    "at_least": [10],
+}
+BANDS = "/v1/series/desk-a/bands?" + urlencode(
+    {"start": "2026-03-09", "end": "2026-03-16", "step": "1h", "tz": TZ}
+)
 
 
 def weekly_table(scale: float) -> np.ndarray:
@@ -48,23 +72,22 @@ def weekly_table(scale: float) -> np.ndarray:
     return scale * np.array([1.0, 1.1, 1.05, 1.0, 1.3, 0.6, 0.5])[:, None] * day[None, :]
 
 
-def build_store(root: Path, *, draws: int, batch_series: int, batch_draws: int) -> None:
+def build_store(root: Path, *, draws: int, series: int, series_draws: int) -> None:
+    """``desk-a`` (a year of history, ``draws`` draws) and ``series`` smaller ones ``sNNNN``."""
     store = FileStore(root)
-    # A realistic main series: a year of history, the draws a default fit keeps, daily deviations.
     store.publish(
         "desk-a",
         synthetic_posterior(
             weekly_table(1.0), tz=TZ, first_day=FIRST_DAY, n_days=365, draws=draws,
-            latent_rho=0.8, latent_sd=0.2,
+            latent_rho=0.8, latent_sd=0.2, dispersion=20.0,
         ),
         manifest=MANIFEST,
     )  # fmt: skip
-    # Smaller posteriors for the many-series batch, so the server's memory stays modest.
     small = synthetic_posterior(
-        weekly_table(0.5), tz=TZ, first_day=FIRST_DAY, n_days=56, draws=batch_draws,
-        latent_rho=0.8, latent_sd=0.2,
+        weekly_table(0.5), tz=TZ, first_day=FIRST_DAY, n_days=56, draws=series_draws,
+        latent_rho=0.8, latent_sd=0.2, dispersion=20.0,
     )  # fmt: skip
-    for i in range(batch_series):
+    for i in range(series):
         store.publish(f"s{i:04d}", small, manifest=MANIFEST)
 
 
@@ -75,178 +98,337 @@ def free_port() -> int:
 
 
 def status_kb(pid: int, field: str) -> int:
+    """A ``kB`` field of ``/proc/<pid>/status`` (``VmRSS``, ``VmHWM``...)."""
     for line in Path(f"/proc/{pid}/status").read_text().splitlines():
         if line.startswith(field + ":"):
             return int(line.split()[1])
     return -1
 
 
-def start_server(store: Path, port: int, log: Path) -> subprocess.Popen[bytes]:
-    env = {**os.environ, "RATECAST_WATCH_SECONDS": "0"}
+def rollup_kb(pid: int) -> dict[str, int]:
+    """``Rss``, ``Pss`` and the shared/private split of ``/proc/<pid>/smaps_rollup``, in kB."""
+    out: dict[str, int] = {}
+    for line in Path(f"/proc/{pid}/smaps_rollup").read_text().splitlines()[1:]:
+        name, _, rest = line.partition(":")
+        out[name] = int(rest.split()[0])
+    return out
+
+
+@contextmanager
+def server(store: Path, log: Path, *, workers: int = 1) -> Iterator[tuple[str, int]]:
+    """``ratecast serve`` on a free loopback port, ready; yields its base URL and pid."""
+    port = free_port()
+    env = {**os.environ, "RATECAST_WATCH_SECONDS": "0", "PYTHONPATH": str(ROOT)}
     for name in ("RATECAST_READ_TOKEN", "RATECAST_MAX_WINDOWS", "RATECAST_MAX_BATCH_ITEMS"):
         env.pop(name, None)
     with log.open("wb") as sink:
         process = subprocess.Popen(
             [sys.executable, "-m", "service.cli", "serve", "--host", "127.0.0.1", "--port",
-             str(port), "--store", str(store), "--workers", "1", "--no-access-log",
+             str(port), "--store", str(store), "--workers", str(workers), "--no-access-log",
              "--log-level", "warning"],
             stdout=sink, stderr=subprocess.STDOUT, env=env, cwd=ROOT,
         )  # fmt: skip
-    deadline = time.monotonic() + 180
-    while time.monotonic() < deadline:
-        if process.poll() is not None:
-            raise SystemExit(f"server exited:\n{log.read_text()}")
-        try:
-            if httpx.get(f"http://127.0.0.1:{port}/v1/health/ready", timeout=2).status_code == 200:
-                return process
-        except httpx.TransportError:
-            pass
-        time.sleep(0.2)
-    process.kill()
-    raise SystemExit("server not ready within 180 s")
-
-
-async def load(
-    base: str, make: Callable[[httpx.AsyncClient], Any], *, requests: int, concurrency: int
-) -> dict[str, float]:
-    """``requests`` calls, at most ``concurrency`` in flight; throughput and latency percentiles."""
-    latencies: list[float] = []
-    failures = 0
-    queue: asyncio.Queue[int] = asyncio.Queue()
-    for i in range(requests):
-        queue.put_nowait(i)
-    limits = httpx.Limits(max_connections=concurrency, max_keepalive_connections=concurrency)
-
-    async def worker(client: httpx.AsyncClient) -> None:
-        nonlocal failures
+    base = f"http://127.0.0.1:{port}"
+    try:
+        deadline = time.monotonic() + 300
         while True:
+            if process.poll() is not None:
+                raise SystemExit(f"server exited:\n{log.read_text()}")
+            if time.monotonic() > deadline:
+                raise SystemExit("server not ready within 300 s")
             try:
-                queue.get_nowait()
-            except asyncio.QueueEmpty:
-                return
-            began = time.perf_counter()
-            response = await make(client)
-            latencies.append(time.perf_counter() - began)
-            failures += response.status_code != 200
-
-    async with httpx.AsyncClient(base_url=base, limits=limits, timeout=60) as client:
-        await make(client)  # warm the connection and the route
-        began = time.perf_counter()
-        await asyncio.gather(*(worker(client) for _ in range(concurrency)))
-        wall = time.perf_counter() - began
-    ordered = sorted(latencies)
-    return {
-        "rps": requests / wall,
-        "p50_ms": 1000 * statistics.median(ordered),
-        "p99_ms": 1000 * ordered[min(len(ordered) - 1, int(0.99 * len(ordered)))],
-        "failures": failures,
-    }
+                if httpx.get(base + "/v1/health/ready", timeout=2).status_code == 200:
+                    break
+            except httpx.TransportError:
+                pass
+            time.sleep(0.2)
+        yield base, process.pid
+    finally:
+        process.terminate()
+        try:
+            process.wait(timeout=15)
+        except subprocess.TimeoutExpired:
+            process.kill()
+            process.wait()
 
 
-async def run(args: argparse.Namespace, base: str, pid: int) -> None:
-    load1, _, _ = os.getloadavg()
-    forecast_body = {
-        "windows": [{"start": "2026-03-10T09:00", "end": "2026-03-10T09:30"}],
-        "tz": TZ,
-        "quantiles": [0.5],
-        "at_least": [10],
-    }
-    week = {"start": "2026-03-09", "end": "2026-03-16", "step": "1h", "tz": TZ}
+@dataclass(frozen=True)
+class Load:
+    """One load run's figures."""
 
-    health = await load(
-        base, lambda c: c.get("/v1/health/live"),
-        requests=args.requests, concurrency=args.concurrency,
-    )  # fmt: skip
-    single = await load(
-        base, lambda c: c.post("/v1/series/desk-a/forecast", json=forecast_body),
-        requests=args.requests, concurrency=args.concurrency,
-    )  # fmt: skip
-    # One connection: latency without queueing behind other requests (the service time).
-    single_seq = await load(
-        base,
-        lambda c: c.post("/v1/series/desk-a/forecast", json=forecast_body),
-        requests=max(100, args.requests // 5),
-        concurrency=1,
+    rps: float
+    p50_ms: float
+    p99_ms: float
+    requests: int
+    errors: int
+
+
+_UNIT_MS = {"us": 1e-3, "ms": 1.0, "s": 1e3, "m": 6e4}
+
+
+def _ms(text: str) -> float:
+    number, unit = re.fullmatch(r"([0-9.]+)(us|ms|s|m)", text).groups()  # type: ignore[union-attr]
+    return float(number) * _UNIT_MS[unit]
+
+
+def wrk_load(
+    base: str,
+    path: str,
+    *,
+    seconds: float,
+    connections: int,
+    body: dict[str, Any] | None,
+    tmp: Path,
+) -> Load:
+    """``wrk -t1 -c<connections> -d<seconds>s --latency`` on ``path`` (POST ``body`` if given)."""
+    command = ["wrk", "-t1", f"-c{connections}", f"-d{seconds:g}s", "--latency", "--timeout", "10s"]
+    if body is not None:
+        script = tmp / "post.lua"
+        payload = json.dumps(body).replace("\\", "\\\\").replace('"', '\\"')
+        script.write_text(
+            'wrk.method = "POST"\n'
+            f'wrk.body = "{payload}"\n'
+            'wrk.headers["Content-Type"] = "application/json"\n'
+        )
+        command += ["-s", str(script)]
+    out = subprocess.run([*command, base + path], capture_output=True, text=True, check=True).stdout
+    rps = float(re.search(r"Requests/sec:\s+([0-9.]+)", out).group(1))  # type: ignore[union-attr]
+    p50 = _ms(re.search(r"\s50%\s+(\S+)", out).group(1))  # type: ignore[union-attr]
+    p99 = _ms(re.search(r"\s99%\s+(\S+)", out).group(1))  # type: ignore[union-attr]
+    requests = int(re.search(r"(\d+) requests in", out).group(1))  # type: ignore[union-attr]
+    bad = re.search(r"Non-2xx or 3xx responses: (\d+)", out)
+    errors = int(bad.group(1)) if bad else 0
+    failed = re.search(r"Socket errors: connect (\d+), read (\d+), write (\d+), timeout (\d+)", out)
+    if failed:
+        errors += sum(int(g) for g in failed.groups())
+    return Load(rps, p50, p99, requests, errors)
+
+
+def _request_bytes(path: str, body: dict[str, Any] | None) -> bytes:
+    if body is None:
+        return f"GET {path} HTTP/1.1\r\nHost: 127.0.0.1\r\n\r\n".encode()
+    data = json.dumps(body).encode()
+    head = (
+        f"POST {path} HTTP/1.1\r\nHost: 127.0.0.1\r\nContent-Type: application/json\r\n"
+        f"Content-Length: {len(data)}\r\n\r\n"
     )
-    bands = await load(
-        base, lambda c: c.get("/v1/series/desk-a/bands", params=week),
-        requests=max(20, args.requests // 40), concurrency=4,
-    )  # fmt: skip
+    return head.encode() + data
 
-    print(f"server pid {pid}, 1 uvicorn worker, {os.cpu_count()} CPUs (load average {load1:.1f} "
-          f"before the run), client httpx (same machine), {args.concurrency} connections")  # fmt: skip
-    print(f"{'call':<44}{'req/s':>9}{'p50 ms':>9}{'p99 ms':>9}{'errors':>8}")
-    rows = [
-        ("GET /v1/health/live (ceiling)", health),
-        (f"POST forecast, 1 window, {args.draws} draws", single),
-        ("  the same, 1 connection", single_seq),
-        ("GET bands, 168 windows, 4 connections", bands),
+
+async def _connection(
+    host: str, port: int, request: bytes, stop: float, latencies: list[float], errors: list[int]
+) -> None:
+    reader, writer = await asyncio.open_connection(host, port)
+    loop = asyncio.get_running_loop()
+    try:
+        while loop.time() < stop:
+            began = time.perf_counter()
+            writer.write(request)
+            head = await reader.readuntil(b"\r\n\r\n")
+            status = int(head[9:12])
+            length = int(re.search(rb"(?i)content-length: *(\d+)", head).group(1))  # type: ignore[union-attr]
+            await reader.readexactly(length)
+            latencies.append(time.perf_counter() - began)
+            if status != 200:
+                errors.append(status)
+    finally:
+        writer.close()
+
+
+def socket_load(
+    base: str, path: str, *, seconds: float, connections: int, body: dict[str, Any] | None
+) -> Load:
+    """The same load as :func:`wrk_load` from asyncio raw sockets (used when wrk is missing)."""
+    host, port = base.removeprefix("http://").split(":")
+    request = _request_bytes(path, body)
+    latencies: list[float] = []
+    errors: list[int] = []
+
+    async def run() -> float:
+        stop = asyncio.get_running_loop().time() + seconds
+        began = time.perf_counter()
+        await asyncio.gather(
+            *(_connection(host, int(port), request, stop, latencies, errors)
+              for _ in range(connections))
+        )  # fmt: skip
+        return time.perf_counter() - began
+
+    wall = asyncio.run(run())
+    ordered = sorted(latencies)
+    return Load(
+        len(ordered) / wall,
+        1000 * statistics.median(ordered),
+        1000 * ordered[min(len(ordered) - 1, int(0.99 * len(ordered)))],
+        len(ordered),
+        len(errors),
+    )
+
+
+def loopback_ceiling(seconds: float, connections: int) -> float:
+    """Requests per second the asyncio client reaches against a minimal asyncio HTTP answerer
+    in a child process: the client's own ceiling (printed beside its figures)."""
+    port = free_port()
+    code = (
+        "import asyncio\n"
+        'R=b\'HTTP/1.1 200 OK\\r\\ncontent-length: 17\\r\\n\\r\\n{"status":"alive"}\'\n'
+        "async def h(r,w):\n"
+        "  try:\n"
+        "    while True:\n"
+        "      await r.readuntil(b'\\r\\n\\r\\n'); w.write(R)\n"
+        "  except Exception: w.close()\n"
+        "async def m():\n"
+        f"  s=await asyncio.start_server(h,'127.0.0.1',{port})\n"
+        "  await s.serve_forever()\n"
+        "asyncio.run(m())\n"
+    )
+    child = subprocess.Popen([sys.executable, "-c", code])
+    try:
+        time.sleep(1.0)
+        return socket_load(
+            f"http://127.0.0.1:{port}", "/", seconds=seconds, connections=connections, body=None
+        ).rps
+    finally:
+        child.terminate()
+        child.wait()
+
+
+def load_rounds(base: str, args: argparse.Namespace, tmp: Path) -> None:
+    tool = "wrk" if shutil.which("wrk") else "asyncio raw sockets"
+    load1, _, _ = os.getloadavg()
+    print(
+        f"load generator: {tool}, 1 thread, {args.connections} connections, {args.seconds:g} s "
+        f"per route; {os.cpu_count()} CPUs, load average {load1:.1f} before the run"
+    )
+    if tool != "wrk":
+        ceiling = loopback_ceiling(args.seconds, args.connections)
+        print(f"  the client's own ceiling (a minimal asyncio answerer): {ceiling:.0f} req/s")
+    routes = [
+        ("GET health/live", HEALTH, None),
+        ("POST forecast, 1 window", FORECAST, FORECAST_BODY),
+        ("GET bands, 168 hourly windows", BANDS, None),
     ]
-    for label, r in rows:
-        print(f"{label:<44}{r['rps']:>9.0f}{r['p50_ms']:>9.2f}{r['p99_ms']:>9.2f}"
-              f"{r['failures']:>8.0f}")  # fmt: skip
-    print(f"forecast / health throughput: {single['rps'] / health['rps']:.0%}")
+    print(f"{'round':<6}{'call':<32}{'req/s':>9}{'x health':>10}{'p50 ms':>9}{'p99 ms':>9}"
+          f"{'errors':>8}")  # fmt: skip
+    for round_ in range(1, args.rounds + 1):
+        health = None
+        for label, path, body in routes:
+            if tool == "wrk":
+                r = wrk_load(
+                    base, path, seconds=args.seconds, connections=args.connections, body=body,
+                    tmp=tmp,
+                )  # fmt: skip
+            else:
+                r = socket_load(
+                    base, path, seconds=args.seconds, connections=args.connections, body=body
+                )
+            health = health or r.rps
+            print(f"{round_:<6}{label:<32}{r.rps:>9.0f}{r.rps / health:>10.2f}{r.p50_ms:>9.2f}"
+                  f"{r.p99_ms:>9.2f}{r.errors:>8}", flush=True)  # fmt: skip
 
+
+def batch(base: str, pid: int, args: argparse.Namespace) -> None:
     items = [
         {"series": f"s{i:04d}", "start": "2026-03-10", "end": "2026-03-11", "step": "1h", "tz": TZ}
         for i in range(args.batch_series)
     ]
-    before = status_kb(pid, "VmHWM")
     rss_before = status_kb(pid, "VmRSS")
     records = ok = 0
+    first = None
     began = time.perf_counter()
-    first_byte = None
-    async with (
-        httpx.AsyncClient(base_url=base, timeout=600) as client,
+    with (
+        httpx.Client(base_url=base, timeout=600) as client,
         client.stream("POST", "/v1/batch", json={"items": items}) as response,
     ):
-        async for line in response.aiter_lines():
-            if first_byte is None:
-                first_byte = time.perf_counter() - began
+        for line in response.iter_lines():
             if line:
+                if first is None:
+                    first = time.perf_counter() - began
                 records += 1
                 ok += json.loads(line)["ok"]
     elapsed = time.perf_counter() - began
-    after = status_kb(pid, "VmHWM")
     print(
-        f"batch {args.batch_series} series x 24 windows ({args.batch_draws} draws each): "
-        f"{elapsed:.2f} s ({records / elapsed:.0f} items/s, first record after "
-        f"{1000 * (first_byte or 0):.0f} ms), {ok}/{records} ok; server RSS before "
-        f"{rss_before / 1024:.0f} MiB, peak (VmHWM) before {before / 1024:.0f} MiB, "
-        f"after {after / 1024:.0f} MiB (the growth is mostly the per-version caches the "
-        "prediction code keeps once a series has been queried)"
+        f"batch {args.batch_series} series x 24 hourly windows ({args.series_draws} draws each, "
+        f"httpx, one streamed request): {elapsed:.2f} s ({records / elapsed:.0f} items/s), first "
+        f"record after {1000 * (first or 0):.0f} ms, {ok}/{records} ok; server RSS "
+        f"{rss_before / 1024:.0f} MiB before, {status_kb(pid, 'VmRSS') / 1024:.0f} MiB after, "
+        f"peak {status_kb(pid, 'VmHWM') / 1024:.0f} MiB"
     )
+
+
+def _workers(pid: int) -> list[int]:
+    """The worker processes of the uvicorn supervisor ``pid`` (not multiprocessing's helpers)."""
+    children = [int(p) for p in Path(f"/proc/{pid}/task/{pid}/children").read_text().split()]
+    return [c for c in children if b"spawn_main" in Path(f"/proc/{c}/cmdline").read_bytes()]
+
+
+def _memory_lines(workers: list[int]) -> list[str]:
+    lines = []
+    for child in workers:
+        roll = rollup_kb(child)
+        shared = roll.get("Shared_Clean", 0) + roll.get("Shared_Dirty", 0)
+        private = roll.get("Private_Clean", 0) + roll.get("Private_Dirty", 0)
+        lines.append(
+            f"    worker pid {child}: RSS {roll['Rss'] / 1024:.0f} MiB (shared {shared / 1024:.0f},"
+            f" private {private / 1024:.0f}), PSS {roll['Pss'] / 1024:.0f} MiB"
+        )
+    return lines
+
+
+def worker_memory(args: argparse.Namespace, tmp: Path) -> None:
+    """RSS and PSS of each worker of ``--workers N`` on a store of ``--rss-series`` series,
+    once loaded and again after every series was queried through each worker."""
+    store = tmp / "store-rss"
+    build_store(store, draws=args.draws, series=args.rss_series - 1, series_draws=args.draws)
+    draws_mb = sum(f.stat().st_size for f in store.rglob("draws.npz")) / 2**20
+    print(
+        f"--workers {args.rss_workers} on {args.rss_series} series x {args.draws} draws (desk-a "
+        f"365 history days, the others 56; draws files {draws_mb:.0f} MiB on disk in all):"
+    )
+    with server(store, tmp / "server-rss.log", workers=args.rss_workers) as (base, pid):
+        time.sleep(2.0)  # every worker loads the store before it answers; let the last finish
+        print("  loaded, before any forecast:")
+        print("\n".join(_memory_lines(_workers(pid))))
+        names = [s["series"] for s in httpx.get(base + "/v1/series", timeout=60).json()["series"]]
+        for _ in range(2 * args.rss_workers):
+            # A new connection each round, so the kernel spreads the rounds over the workers.
+            with httpx.Client(base_url=base, timeout=60) as client:
+                for name in names:
+                    client.post(f"/v1/series/{name}/forecast", json=FORECAST_BODY)
+        print(f"  after {2 * args.rss_workers} rounds of one forecast per series:")
+        print("\n".join(_memory_lines(_workers(pid))))
 
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--requests", type=int, default=2000)
-    parser.add_argument("--concurrency", type=int, default=16)
+    parser.add_argument("--seconds", type=float, default=8.0, help="seconds of load per route")
+    parser.add_argument("--rounds", type=int, default=2, help="times the three routes are loaded")
+    parser.add_argument("--connections", type=int, default=16)
     parser.add_argument("--draws", type=int, default=2000, help="draws of the main series")
     parser.add_argument("--batch-series", type=int, default=1000)
-    parser.add_argument("--batch-draws", type=int, default=200)
+    parser.add_argument("--series-draws", type=int, default=200, help="draws of the batch series")
+    parser.add_argument("--rss-workers", type=int, default=2, help="0: skip the memory run")
+    parser.add_argument("--rss-series", type=int, default=100)
     args = parser.parse_args()
-    with tempfile.TemporaryDirectory(prefix="ratecast-bench-") as tmp:
-        store = Path(tmp) / "store"
+    with tempfile.TemporaryDirectory(prefix="ratecast-bench-") as folder:
+        tmp = Path(folder)
         began = time.perf_counter()
         build_store(
-            store, draws=args.draws, batch_series=args.batch_series, batch_draws=args.batch_draws
-        )
+            tmp / "store", draws=args.draws, series=args.batch_series,
+            series_draws=args.series_draws,
+        )  # fmt: skip
         print(f"store of {args.batch_series + 1} series written in "
               f"{time.perf_counter() - began:.1f} s")  # fmt: skip
-        port = free_port()
         began = time.perf_counter()
-        process = start_server(store, port, Path(tmp) / "server.log")
-        print(f"server ready (all series loaded) in {time.perf_counter() - began:.1f} s")
-        try:
-            asyncio.run(run(args, f"http://127.0.0.1:{port}", process.pid))
-        finally:
-            process.terminate()
-            try:
-                process.wait(timeout=15)
-            except subprocess.TimeoutExpired:
-                process.kill()
-                process.wait()
+        with server(tmp / "store", tmp / "server.log") as (base, pid):
+            print(
+                f"ratecast serve --workers 1 (pid {pid}) ready, all series loaded, in "
+                f"{time.perf_counter() - began:.1f} s; desk-a: negative binomial, {args.draws} "
+                "draws, 365 history days"
+            )
+            load_rounds(base, args, tmp)
+            batch(base, pid, args)
+        if args.rss_workers:
+            worker_memory(args, tmp)
 
 
 if __name__ == "__main__":

@@ -10,6 +10,7 @@ computed in the :class:`~service.api.work.WorkPool`.
 from __future__ import annotations
 
 import datetime as dt
+import functools
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -166,9 +167,9 @@ class ForecastPlan:
             total=options.total,
         )
 
-    @property
+    @functools.cached_property
     def cells(self) -> int:
-        """Estimated bin-draws of the answer."""
+        """Estimated bin-draws of the answer (estimated once: the budget and the pool ask)."""
         return self.windows.cells(self.stored)
 
     def compute(self, job: Job, *, horizon_days: int) -> BaseModel:

@@ -11,6 +11,7 @@ whatever zone the times came in.
 from __future__ import annotations
 
 import datetime as dt
+import functools
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -31,7 +32,10 @@ def parse_time(text: str | dt.datetime, *, tz: str | None, field: str) -> pd.Tim
     is local to ``tz``.
 
     One zone for every time of a request, so that they make one index, and messages about
-    them read in the zone the caller gave.
+    them read in the zone the caller gave. Instants parsed from text are remembered: clients ask
+    for the same few times again and again, and parsing is most of the cost of a small
+    request's windows. (Datetimes are not: two aware datetimes on either side of a repeated
+    hour compare equal, so they cannot key a cache.)
 
     Raises
     ------
@@ -39,19 +43,34 @@ def parse_time(text: str | dt.datetime, *, tz: str | None, field: str) -> pd.Tim
         With ``field`` and ``value`` set, if the time cannot be read or represented.
     """
     try:
-        stamp = parse_instant(text, tz=tz)
+        return _text_instant(text, tz) if isinstance(text, str) else _instant(text, tz)
     except InputError as exc:
         exc.locate(field, text)
         raise
-    try:
-        return stamp.tz_convert(tz or "UTC").as_unit("ns")
-    except (ValueError, OverflowError) as exc:
+    except _Unrepresentable as exc:
         raise WindowError(
             f"time {text!r} is outside the range that can be represented",
             field=field,
             value=text,
             allowed="dates between 1678 and 2261",
-        ) from exc
+        ) from exc.__cause__
+
+
+class _Unrepresentable(Exception):
+    """A parsed instant that nanoseconds in the caller's zone cannot hold."""
+
+
+def _instant(text: str | dt.datetime, tz: str | None) -> pd.Timestamp:
+    stamp = parse_instant(text, tz=tz)
+    try:
+        return stamp.tz_convert(tz or "UTC").as_unit("ns")
+    except (ValueError, OverflowError) as exc:
+        raise _Unrepresentable from exc
+
+
+# Timestamps are immutable, so a remembered one can be handed out again; errors are not
+# remembered (lru_cache keeps only returned values) and are raised afresh each time.
+_text_instant = functools.lru_cache(maxsize=4096)(_instant)
 
 
 @dataclass(frozen=True)

@@ -185,6 +185,21 @@ class TestForecast:
         assert "no UTC offset" in body["message"]
         assert "tz" in body["allowed"]
 
+    def test_a_time_read_before_is_read_again_in_its_own_zone_and_place(
+        self, client: TestClient
+    ) -> None:
+        # Times parsed from text are remembered per (text, zone): the same text in another zone
+        # is another instant, and refused without a zone it names where it stands this time.
+        chicago = forecast(client, {"windows": [ONE_HOUR], "tz": TZ}).json()["windows"][0]
+        new_york = forecast(client, {"windows": [ONE_HOUR], "tz": "America/New_York"}).json()
+        # New York keeps Eastern time, one hour ahead of Chicago's Central time, all year
+        # (IANA tz database zones; common practice, no source).
+        assert chicago["start"] == "2026-03-03T09:00:00-06:00"
+        assert new_york["windows"][0]["start"] == "2026-03-03T08:00:00-06:00"
+        again = {"start": "2026-03-03T08:00-06:00", "end": ONE_HOUR["start"]}
+        body = assert_error(forecast(client, {"windows": [again]}), 422, field="windows[0].end")
+        assert body["value"] == ONE_HOUR["start"]
+
     def test_unknown_zone_is_422(self, client: TestClient) -> None:
         body = assert_error(
             forecast(client, {"windows": [ONE_HOUR], "tz": "Mars/Olympus"}), 422, field="tz"
