@@ -37,6 +37,14 @@ def monday_nine(history: pd.DataFrame) -> pd.Series:
     return history[history["start"].str.endswith("T09:00") & mondays]["count"]
 
 
+def fit_counts(folder: Path, *, tz: str, extra: tuple[str, ...] = ()) -> int:
+    """``ratecast fit`` of ``folder/c.csv`` (counts) into a store in ``folder``."""
+    return main(
+        ["fit", "--series", "x", "--counts", str(folder / "c.csv"), "--tz", tz,
+         "--store", str(folder), *extra]
+    )  # fmt: skip
+
+
 def ratecast(*args: str, store: Path) -> subprocess.CompletedProcess[str]:
     env = {**os.environ, "RATECAST_STORE": str(store)}
     return subprocess.run(
@@ -223,19 +231,7 @@ class TestErrors:
 
     def test_bad_zone_exits_2(self, tmp_path: Path, capsys) -> None:
         (tmp_path / "c.csv").write_text("start,count\n2026-01-01T00:00Z,1\n2026-01-01T01:00Z,2\n")
-        code = main(
-            [
-                "fit",
-                "--series",
-                "x",
-                "--counts",
-                str(tmp_path / "c.csv"),
-                "--tz",
-                "Mars/Base",
-                "--store",
-                str(tmp_path),
-            ]
-        )
+        code = fit_counts(tmp_path, tz="Mars/Base")
         assert code == 2
         assert "Mars/Base" in capsys.readouterr().err
 
@@ -271,19 +267,7 @@ class TestErrors:
 
     def test_fractional_count_names_the_row(self, tmp_path: Path, capsys) -> None:
         (tmp_path / "c.csv").write_text("start,count\n2026-01-01T00:00Z,1\n2026-01-01T01:00Z,2.5\n")
-        code = main(
-            [
-                "fit",
-                "--series",
-                "x",
-                "--counts",
-                str(tmp_path / "c.csv"),
-                "--tz",
-                "UTC",
-                "--store",
-                str(tmp_path),
-            ]
-        )
+        code = fit_counts(tmp_path, tz="UTC")
         assert code == 2
         assert "line 3: '2.5' is not a whole number" in capsys.readouterr().err
 

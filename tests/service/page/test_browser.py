@@ -11,7 +11,6 @@ Needs Debian's ``chromium`` at /usr/bin/chromium (``apt-get install -y chromium`
 from __future__ import annotations
 
 import os
-import subprocess
 import xml.etree.ElementTree as ET
 from collections.abc import Iterator
 from pathlib import Path
@@ -31,7 +30,7 @@ if not CHROMIUM.exists():
 from playwright.sync_api import Browser, Page, sync_playwright  # noqa: E402
 
 from service.queries.forecast import forecast_csv  # noqa: E402
-from tests.service.api.test_e2e import free_port, ratecast_command, wait_until_ready  # noqa: E402
+from tests.service.api.test_e2e import serve  # noqa: E402
 from tests.service.page.support import READER, TZ, publish_page_store  # noqa: E402
 
 pytestmark = pytest.mark.e2e
@@ -45,27 +44,10 @@ RANGE = {"from": "2026-03-06", "to": "2026-03-09"}
 def server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[str]:
     root = tmp_path_factory.mktemp("page")
     store = publish_page_store(root / "store", draws=60)
-    port = free_port()
     log = root / "server.log"
-    env = {**os.environ, "RATECAST_READ_TOKEN": READER, "RATECAST_WATCH_SECONDS": "0"}
-    env.pop("RATECAST_ADMIN_TOKEN", None)
-    with log.open("wb") as sink:
-        process = subprocess.Popen(
-            [*ratecast_command(), "serve", "--host", "127.0.0.1", "--port", str(port),
-             "--store", str(store.root), "--workers", "1"],
-            stdout=sink, stderr=subprocess.STDOUT, env=env,
-        )  # fmt: skip
-    base = f"http://127.0.0.1:{port}"
-    try:
-        wait_until_ready(base, process, log)
+    # An empty admin token means "not set": the page's server needs only the read token.
+    with serve(store, log, RATECAST_READ_TOKEN=READER, RATECAST_ADMIN_TOKEN="") as base:
         yield base
-    finally:
-        process.terminate()
-        try:
-            process.wait(timeout=15)
-        except subprocess.TimeoutExpired:
-            process.kill()
-            process.wait(timeout=5)
     assert READER not in log.read_text(), "the read token was written to the server log"
 
 
