@@ -246,21 +246,7 @@ class TestErrors:
         self, tmp_path: Path, capsys, option: str, value: str, named: str
     ) -> None:
         (tmp_path / "c.csv").write_text("start,count\n2026-01-01T00:00Z,1\n2026-01-01T01:00Z,2\n")
-        code = main(
-            [
-                "fit",
-                "--series",
-                "x",
-                "--counts",
-                str(tmp_path / "c.csv"),
-                "--tz",
-                "UTC",
-                option,
-                value,
-                "--store",
-                str(tmp_path),
-            ]
-        )
+        code = fit_counts(tmp_path, tz="UTC", extra=(option, value))
         assert code == 2
         assert named in capsys.readouterr().err
         assert not (tmp_path / "x").exists()
