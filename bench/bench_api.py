@@ -34,7 +34,7 @@ import subprocess
 import sys
 import tempfile
 import time
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
@@ -216,12 +216,17 @@ def _request_bytes(path: str, body: dict[str, Any] | None) -> bytes:
 
 
 async def _connection(
-    host: str, port: int, request: bytes, stop: float, latencies: list[float], errors: list[int]
+    host: str,
+    port: int,
+    request: bytes,
+    more: Callable[[], bool],
+    latencies: list[float],
+    errors: list[int],
 ) -> None:
+    """One keep-alive connection sending ``request`` (one at a time) while ``more()`` says so."""
     reader, writer = await asyncio.open_connection(host, port)
-    loop = asyncio.get_running_loop()
     try:
-        while loop.time() < stop:
+        while more():
             began = time.perf_counter()
             writer.write(request)
             head = await reader.readuntil(b"\r\n\r\n")
@@ -235,25 +240,7 @@ async def _connection(
         writer.close()
 
 
-def socket_load(
-    base: str, path: str, *, seconds: float, connections: int, body: dict[str, Any] | None
-) -> Load:
-    """The same load as :func:`wrk_load` from asyncio raw sockets (used when wrk is missing)."""
-    host, port = base.removeprefix("http://").split(":")
-    request = _request_bytes(path, body)
-    latencies: list[float] = []
-    errors: list[int] = []
-
-    async def run() -> float:
-        stop = asyncio.get_running_loop().time() + seconds
-        began = time.perf_counter()
-        await asyncio.gather(
-            *(_connection(host, int(port), request, stop, latencies, errors)
-              for _ in range(connections))
-        )  # fmt: skip
-        return time.perf_counter() - began
-
-    wall = asyncio.run(run())
+def _summary(latencies: list[float], errors: list[int], wall: float) -> Load:
     ordered = sorted(latencies)
     return Load(
         len(ordered) / wall,
@@ -262,6 +249,59 @@ def socket_load(
         len(ordered),
         len(errors),
     )
+
+
+def _socket_run(
+    base: str,
+    request: bytes,
+    connections: int,
+    more: Callable[[], bool],
+    latencies: list[float],
+    errors: list[int],
+) -> float:
+    """Run ``connections`` connections to ``base`` until ``more()`` is false; the wall seconds."""
+    host, port = base.removeprefix("http://").split(":")
+
+    async def run() -> float:
+        began = time.perf_counter()
+        await asyncio.gather(
+            *(_connection(host, int(port), request, more, latencies, errors)
+              for _ in range(connections))
+        )  # fmt: skip
+        return time.perf_counter() - began
+
+    return asyncio.run(run())
+
+
+def socket_load(
+    base: str, path: str, *, seconds: float, connections: int, body: dict[str, Any] | None
+) -> Load:
+    """The same load as :func:`wrk_load` from asyncio raw sockets (used when wrk is missing)."""
+    latencies: list[float] = []
+    errors: list[int] = []
+    stop = time.perf_counter() + seconds
+    wall = _socket_run(
+        base, _request_bytes(path, body), connections, lambda: time.perf_counter() < stop,
+        latencies, errors,
+    )  # fmt: skip
+    return _summary(latencies, errors, wall)
+
+
+def count_load(
+    base: str, path: str, *, count: int, connections: int, body: dict[str, Any] | None
+) -> Load:
+    """Exactly ``count`` requests over ``connections`` keep-alive connections (asyncio raw
+    sockets), each one's latency recorded: a fixed amount of work, whatever the speed."""
+    latencies: list[float] = []
+    errors: list[int] = []
+    left = [count]
+
+    def more() -> bool:  # one ticket per request; the connections share them
+        left[0] -= 1
+        return left[0] >= 0
+
+    wall = _socket_run(base, _request_bytes(path, body), connections, more, latencies, errors)
+    return _summary(latencies, errors, wall)
 
 
 def loopback_ceiling(seconds: float, connections: int) -> float:
