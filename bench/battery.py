@@ -139,10 +139,10 @@ def synthetic(
 
 # ----------------------------------------------------------------------------- real series
 def auckland(sensor: str, end: dt.date, weeks: int) -> Callable[[], tuple[BinnedSeries, None]]:
-    """``weeks`` of hourly counts of one sensor before ``end`` (loaded as bench/evidence.py does)."""
+    """``weeks`` of hourly counts of one sensor before ``end`` (loaded by bench/open_data.py)."""
 
     def load() -> tuple[BinnedSeries, None]:
-        from evidence import auckland as load_sensor
+        from open_data import auckland as load_sensor
 
         return load_sensor(sensor, end - dt.timedelta(weeks=weeks), end), None
 
@@ -151,7 +151,7 @@ def auckland(sensor: str, end: dt.date, weeks: int) -> Callable[[], tuple[Binned
 
 def births(end: dt.date, years: int) -> Callable[[], tuple[BinnedSeries, None]]:
     def load() -> tuple[BinnedSeries, None]:
-        from evidence import us_births
+        from open_data import us_births
 
         return us_births(end.replace(year=end.year - years), end), None
 
