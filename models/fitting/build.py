@@ -11,6 +11,7 @@ import numpy as np
 import pymc as pm
 import pytensor.tensor as pt
 
+from models.fitting.gate import unobserved_cells
 from models.fitting.geometry import choose_geometry
 from models.ratemodel.bases import annual_basis, within_day_basis, year_phase
 from models.ratemodel.design import JointData, ModelData
@@ -43,6 +44,9 @@ def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
     feats = data.features
     coords = {**data.coords, "bin": np.arange(len(data.count))}
     priors = spec.priors
+    closed = unobserved_cells(data)
+    open_dow: np.ndarray = np.asarray(~closed.all(axis=1))
+    open_slot: np.ndarray = np.asarray(~closed.all(axis=0))
     with pm.Model(coords=coords) as model:
         if priors.baseline_gamma is not None:
             shape, rate = priors.baseline_gamma
@@ -56,27 +60,24 @@ def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
         week = pt.zeros((7, spec.slots_per_day)) + baseline
         if spec.day_of_week:
             dow_sd = pm.HalfNormal("dow_sd", sigma=priors.dow_scale)
-            dow_effect = pm.ZeroSumNormal("dow_effect", sigma=dow_sd, dims="dow")
+            dow_effect = _effect("dow_effect", dow_sd, (open_dow,), ("dow",), model)
             week = week + dow_effect[:, None]
         if spec.has_time_of_day:
             slot_sd = pm.HalfNormal("slot_sd", sigma=priors.slot_scale)
-            slot_effect = pm.ZeroSumNormal("slot_effect", sigma=slot_sd, dims="slot")
+            slot_effect = _effect("slot_effect", slot_sd, (open_slot,), ("slot",), model)
             week = week + slot_effect[None, :]
         geometry = choose_geometry(data, spec)
         if spec.interaction and spec.has_time_of_day:
             # Shrinks toward the additive weekly shape as interaction_sd -> 0.
             interaction_sd = pm.HalfNormal("interaction_sd", sigma=priors.interaction_scale)
+            cells = (open_dow, open_slot)
             if geometry.centred_interaction:
-                interaction = pm.ZeroSumNormal(
-                    "interaction", sigma=interaction_sd, n_zerosum_axes=2, dims=("dow", "slot")
-                )
+                interaction = _effect("interaction", interaction_sd, cells, ("dow", "slot"), model)
             else:
                 # Non-centred: the data measure a cell less well than the interaction's spread,
                 # so the centred form funnels as interaction_sd -> 0 (r_hat 1.7 measured on 4
                 # weeks of sparse hourly data, 1.09 on 8 busy weeks with an additive shape).
-                raw = pm.ZeroSumNormal(
-                    "interaction_raw", sigma=1.0, n_zerosum_axes=2, dims=("dow", "slot")
-                )
+                raw = _effect("interaction_raw", 1.0, cells, ("dow", "slot"), model)
                 interaction = pm.Deterministic(
                     "interaction", interaction_sd * raw, dims=("dow", "slot")
                 )
@@ -137,7 +138,9 @@ def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
             log_rate = log_rate + latent[feats.day]
 
         if spec.observation == "negbin":
-            log_k = _log_dispersion(spec, series=None, centred=geometry.centred_dispersion)
+            log_k = _log_dispersion(
+                spec, series=None, centred=geometry.centred_dispersion, open_slot=open_slot
+            )
             _negbin_counts(log_rate + np.log(data.exposure_hours), log_k, feats.slot, data.count)
         else:
             mean = pt.exp(log_rate) * data.exposure_hours
@@ -194,7 +197,9 @@ def _negbin_counts(
     )
 
 
-def _log_dispersion(spec: ModelSpec, *, series: int | None, centred: bool) -> pt.TensorVariable:
+def _log_dispersion(
+    spec: ModelSpec, *, series: int | None, centred: bool, open_slot: np.ndarray | None = None
+) -> pt.TensorVariable:
     """Log of the negative binomial dispersion per slot (the deterministic ``dispersion`` is its
     exponential), dims ``slot``, or ``(series, slot)`` for a joint model with ``series``
     members, each with its own.
@@ -218,7 +223,15 @@ def _log_dispersion(spec: ModelSpec, *, series: int | None, centred: bool) -> pt
         spread = pm.HalfNormal(
             "overdispersion_slot_sd", sigma=priors.overdispersion_slot_scale, dims=lead or None
         )
-        if centred:
+        if series is None and open_slot is not None and not open_slot.all():
+            # Slots never observed keep the series' value (see _effect).
+            model = pm.modelcontext(None)
+            if centred:
+                slot_effect = _effect("overdispersion_slot", spread, (open_slot,), ("slot",), model)
+            else:
+                raw = _effect("overdispersion_slot_raw", 1.0, (open_slot,), ("slot",), model)
+                slot_effect = spread * raw
+        elif centred:
             slot_effect = pm.ZeroSumNormal(
                 "overdispersion_slot", sigma=spread[..., None], dims=(*lead, "slot")
             )
@@ -231,6 +244,38 @@ def _log_dispersion(spec: ModelSpec, *, series: int | None, centred: bool) -> pt
     log_k = -2.0 * log_cv_slot
     pm.Deterministic("dispersion", pt.exp(log_k), dims=(*lead, "slot"))
     return log_k
+
+
+def _effect(
+    name: str,
+    sigma: pt.TensorVariable | float,
+    observed: tuple[np.ndarray, ...],
+    dims: tuple[str, ...],
+    model: pm.Model,
+) -> pt.TensorVariable:
+    """A zero-sum effect over ``dims`` whose entries never observed in the history are 0.
+
+    When every entry of ``dims`` is observed (``observed`` holds one boolean mask per dim) this
+    is ``pm.ZeroSumNormal(name, dims=dims)``. Otherwise the free variable ``{name}_open`` lives
+    on dims ``open_<dim>`` (the observed entries only) and sums to zero over them, and ``name``
+    is the deterministic with the never-observed entries set to 0. Left free, those entries
+    are informed by the prior alone, and a zero sum over them ties the level of every observed
+    entry to their prior draws: the baseline, every open slot and every closed slot then move
+    together along a ridge (measured on half-hourly call-centre counts, closed nights and
+    weekends: bulk ESS 19 and r_hat 1.11 for the slot effects at 2 x 500 draws). A closed
+    entry forecasts nothing (its bins have no exposure), so 0 loses nothing.
+    """
+    if all(mask.all() for mask in observed):
+        return pm.ZeroSumNormal(name, sigma=sigma, n_zerosum_axes=len(dims), dims=dims)
+    open_dims = tuple(f"open_{dim}" for dim in dims)
+    for dim, open_dim, mask in zip(dims, open_dims, observed, strict=True):
+        if open_dim not in model.coords:
+            model.add_coord(open_dim, np.asarray(model.coords[dim])[mask])
+    free = pm.ZeroSumNormal(f"{name}_open", sigma=sigma, n_zerosum_axes=len(dims), dims=open_dims)
+    shape = tuple(len(mask) for mask in observed)
+    where = np.ravel_multi_index(np.ix_(*(np.flatnonzero(m) for m in observed)), shape).ravel()
+    full = pt.set_subtensor(pt.zeros(int(np.prod(shape)))[where], free.ravel())
+    return pm.Deterministic(name, full.reshape(shape), dims=dims)
 
 
 def _columns_times(basis: np.ndarray, weights: pt.TensorVariable) -> pt.TensorVariable:

@@ -95,6 +95,9 @@ def check_diagnostics(
         derived.add("interaction")
     if "latent_innovation" in posterior:
         derived.add("latent")
+    # Effects sampled on their observed entries only (``{name}_open``) are scattered into
+    # deterministics with zeros where nothing was observed.
+    derived |= {str(v)[: -len("_open")] for v in posterior.data_vars if str(v).endswith("_open")}
     names = var_names or [str(v) for v in posterior.data_vars if v not in derived]
     chains = int(posterior.sizes["chain"])
     draws = int(posterior.sizes["draw"])
@@ -110,6 +113,11 @@ def check_diagnostics(
                 mask = xr.DataArray(unobserved.all(axis=1), dims=("dow",))
             elif dims == ("dow", "slot"):
                 mask = xr.DataArray(unobserved, dims=("dow", "slot"))
+            elif dims == ("open_dow", "open_slot"):
+                # Cells inside the observed days and slots that were still never observed
+                # (e.g. Saturday mornings of a desk that opens later at weekends).
+                rows, cols = ~unobserved.all(axis=1), ~unobserved.all(axis=0)
+                mask = xr.DataArray(unobserved[np.ix_(rows, cols)], dims=dims)
             else:
                 continue
             checked[name] = checked[name].where(~mask)
