@@ -451,26 +451,63 @@ class Forecast:
 def _rows(
     summary: MixtureSummary, starts: pd.DatetimeIndex, ends: pd.DatetimeIndex, tz: str
 ) -> list[ForecastRow]:
-    local_starts = starts.tz_convert(tz)
-    local_ends = ends.tz_convert(tz)
+    # Every column is turned into Python values once (``tolist``), never by indexing per window.
+    start_text, end_text = iso_local(starts, tz), iso_local(ends, tz)
+    means, sds, zeros = summary.mean.tolist(), summary.sd.tolist(), summary.p_zero.tolist()
+    intervals = [
+        (_key(level), lo.tolist(), hi.tolist()) for level, (lo, hi) in summary.intervals.items()
+    ]
+    quantiles = [(_key(q), v.tolist()) for q, v in summary.quantiles.items()]
+    tails = [(str(k), p.tolist()) for k, p in summary.at_least.items()]
     rows = []
-    for i in range(len(starts)):
+    for i in range(len(start_text)):
         row: ForecastRow = {
-            "start": local_starts[i].isoformat(),
-            "end": local_ends[i].isoformat(),
-            "mean": float(summary.mean[i]),
-            "sd": float(summary.sd[i]),
-            "p_zero": float(summary.p_zero[i]),
-            "intervals": {
-                _key(level): [int(lo[i]), int(hi[i])]
-                for level, (lo, hi) in summary.intervals.items()
-            },
-            "quantiles": {_key(q): int(v[i]) for q, v in summary.quantiles.items()},
+            "start": start_text[i],
+            "end": end_text[i],
+            "mean": means[i],
+            "sd": sds[i],
+            "p_zero": zeros[i],
+            "intervals": {key: [lo[i], hi[i]] for key, lo, hi in intervals},
+            "quantiles": {key: v[i] for key, v in quantiles},
         }
-        if summary.at_least:
-            row["at_least"] = {str(k): float(p[i]) for k, p in summary.at_least.items()}
+        if tails:
+            row["at_least"] = {key: p[i] for key, p in tails}
         rows.append(row)
     return rows
+
+
+def iso_local(instants: pd.DatetimeIndex, tz: str) -> list[str]:
+    """ISO 8601 texts of ``instants`` in the zone ``tz``, as ``Timestamp.isoformat`` gives them.
+
+    Whole-second instants at whole-minute offsets (every window the service cuts) are formatted
+    for all instants at once by numpy; any other instant is left to pandas, one by one.
+
+    Examples
+    --------
+    >>> iso_local(pd.DatetimeIndex(["2026-03-08T07:30Z", "2026-03-08T08:30Z"]), "America/Chicago")
+    ['2026-03-08T01:30:00-06:00', '2026-03-08T03:30:00-05:00']
+    """
+    local = instants.tz_convert(tz)
+    utc_ns = local.as_unit("ns").asi8
+    wall_ns = local.tz_localize(None).as_unit("ns").asi8
+    offset_s = (wall_ns - utc_ns) // 10**9
+    if np.any(wall_ns % 10**9) or np.any(offset_s % 60):
+        return [stamp.isoformat() for stamp in local]
+    walls = np.datetime_as_string((wall_ns // 10**9).astype("datetime64[s]"), unit="s").tolist()
+    minutes = offset_s // 60
+    signs = np.where(minutes < 0, "-", "+")
+    hours, mins = np.divmod(np.abs(minutes), 60)
+    names: dict[tuple[str, int, int], str] = {}
+    texts = []
+    for wall, sign, hour, minute in zip(
+        walls, signs.tolist(), hours.tolist(), mins.tolist(), strict=True
+    ):
+        key = (sign, hour, minute)
+        suffix = names.get(key)
+        if suffix is None:
+            suffix = names[key] = f"{sign}{hour:02d}:{minute:02d}"
+        texts.append(wall + suffix)
+    return texts
 
 
 def _key(value: float) -> str:
