@@ -31,6 +31,7 @@ from __future__ import annotations
 
 import datetime as dt
 import re
+import zoneinfo
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import NotRequired, TypedDict
@@ -68,6 +69,8 @@ _BLOCK_BINS = 256
 # Endpoint rows (of every draw) handled together while interpolating: 2 x 32 x 2,000 draws of
 # float64 is 1 MB, within a core's L2 cache.
 _TILE_ROWS = 32
+# Up to this many instants are formatted one by one (see iso_local).
+_FEW_INSTANTS = 64
 _NS_PER_MINUTE = 60 * 10**9
 # Keeps the bin-noise streams apart from the latent forward simulation, which uses the seed alone.
 _NOISE_STREAM = 0x6E6F697365
@@ -194,25 +197,26 @@ def _check_windows(
     starts: pd.DatetimeIndex,
     ends: pd.DatetimeIndex,
     horizon_days: int,
-) -> None:
+) -> tuple[np.ndarray, np.ndarray]:
+    """Refuse windows outside what ``posterior`` answers; their starts and ends in nanoseconds."""
     if len(starts) != len(ends):
         raise WindowError(f"{len(starts)} window starts but {len(ends)} ends")
     if len(starts) == 0:
         raise WindowError("no windows requested; give at least one start and end")
     if starts.tz is None or ends.tz is None:
         raise WindowError("window times must carry a UTC offset or zone")
-    bad = np.flatnonzero(ends.as_unit("ns").asi8 <= starts.as_unit("ns").asi8)
+    s_ns, e_ns = starts.as_unit("ns").asi8, ends.as_unit("ns").asi8
+    bad = np.flatnonzero(e_ns <= s_ns)
     if bad.size:
         i = int(bad[0])
         raise WindowError(
             f"window {i}: end {ends[i].isoformat()} is not after start {starts[i].isoformat()}",
             window=i,
         )
-    cal = posterior.calendar
-    first = pd.Timestamp(cal.first_day).tz_localize(
-        cal.tz, nonexistent="shift_forward", ambiguous=True
+    first, limit = posterior.memo(
+        f"window-bounds-{horizon_days}", lambda: _window_bounds(posterior, horizon_days)
     )
-    early = np.flatnonzero(starts.as_unit("ns").asi8 < first.value)
+    early = np.flatnonzero(s_ns < first.value)
     if early.size:
         i = int(early[0])
         raise WindowError(
@@ -220,9 +224,7 @@ def _check_windows(
             f"({first.isoformat()}); windows must start on or after it",
             window=i,
         )
-    limit_day = posterior.history_end + dt.timedelta(days=horizon_days)
-    limit = pd.Timestamp(limit_day).tz_localize(cal.tz, nonexistent="shift_forward", ambiguous=True)
-    late = np.flatnonzero(ends.as_unit("ns").asi8 > limit.value)
+    late = np.flatnonzero(e_ns > limit.value)
     if late.size:
         i = int(late[0])
         raise WindowError(
@@ -230,6 +232,20 @@ def _check_windows(
             f"days after the history ({limit.isoformat()})",
             window=i,
         )
+    return s_ns, e_ns
+
+
+def _window_bounds(
+    posterior: CompactPosterior, horizon_days: int
+) -> tuple[pd.Timestamp, pd.Timestamp]:
+    """The first instant of the history and the latest window end, local midnights."""
+    cal = posterior.calendar
+    first = pd.Timestamp(cal.first_day).tz_localize(
+        cal.tz, nonexistent="shift_forward", ambiguous=True
+    )
+    limit_day = posterior.history_end + dt.timedelta(days=horizon_days)
+    limit = pd.Timestamp(limit_day).tz_localize(cal.tz, nonexistent="shift_forward", ambiguous=True)
+    return first, limit
 
 
 def expected_counts(
@@ -244,10 +260,8 @@ def expected_counts(
     Windows are grouped into clusters of overlapping or touching spans, each laid on the model's
     bin grid in blocks, so memory stays bounded however far apart or long the windows are.
     """
-    _check_windows(posterior, starts, ends, horizon_days)
-    cal = posterior.calendar
-    bin_ns = cal.bin_minutes * _NS_PER_MINUTE
-    s_ns, e_ns = starts.as_unit("ns").asi8, ends.as_unit("ns").asi8
+    s_ns, e_ns = _check_windows(posterior, starts, ends, horizon_days)
+    bin_ns = posterior.calendar.bin_minutes * _NS_PER_MINUTE
     order = np.argsort(s_ns, kind="stable")
     result = np.empty((len(starts), posterior.n_draws))
     cluster: list[int] = []
@@ -555,8 +569,13 @@ def iso_local(instants: pd.DatetimeIndex, tz: str) -> list[str]:
     >>> iso_local(pd.DatetimeIndex(["2026-03-08T07:30Z", "2026-03-08T08:30Z"]), "America/Chicago")
     ['2026-03-08T01:30:00-06:00', '2026-03-08T03:30:00-05:00']
     """
+    utc_ns = instants.as_unit("ns").asi8
+    if len(utc_ns) <= _FEW_INSTANTS and not np.any(utc_ns % 10**9):
+        # A few instants: the standard library is quicker than setting up the vectorised pass
+        # (pandas keeps zones as zoneinfo objects, so both read the same zone rules).
+        zone = zoneinfo.ZoneInfo(tz)
+        return [dt.datetime.fromtimestamp(ns // 10**9, zone).isoformat() for ns in utc_ns.tolist()]
     local = instants.tz_convert(tz)
-    utc_ns = local.as_unit("ns").asi8
     wall_ns = local.tz_localize(None).as_unit("ns").asi8
     offset_s = (wall_ns - utc_ns) // 10**9
     if np.any(wall_ns % 10**9) or np.any(offset_s % 60):
