@@ -446,14 +446,17 @@ def _cached_noise(
     lock, cache = posterior.noise_cache
     out = np.empty((len(bin_ids), posterior.n_draws))
     with lock:
-        missing = []
+        missing, found, columns = [], [], []
         for j, bin_id in enumerate(bin_ids.tolist()):
             column = cache.get(bin_id)
             if column is None:
                 missing.append(j)
             else:
                 cache.move_to_end(bin_id)
-                out[j] = column
+                found.append(j)
+                columns.append(column)
+    if columns:  # one conversion to float64 for all cached bins, not one per bin
+        out[found] = np.stack(columns)
     if missing:
         rows = np.asarray(missing)
         # Rounded to float32 as stored, so a bin's noise is the same computed or cached.
