@@ -56,6 +56,7 @@ __all__ = [
     "ForecastRow",
     "expected_counts",
     "forecast",
+    "iso_local",
     "parse_instant",
     "parse_step",
     "split_range",
