@@ -565,8 +565,10 @@ def _rows(
 def iso_local(instants: pd.DatetimeIndex, tz: str) -> list[str]:
     """ISO 8601 texts of ``instants`` in the zone ``tz``, as ``Timestamp.isoformat`` gives them.
 
-    Whole-second instants at whole-minute offsets (every window the service cuts) are formatted
-    for all instants at once by numpy; any other instant is left to pandas, one by one.
+    A few whole-second instants are formatted by the standard library, one by one; many
+    whole-second instants at whole-minute offsets (every window the service cuts) all at once by
+    numpy; anything else (fractions of a second, offsets in seconds) is left to pandas. ``tz`` is
+    an IANA zone name, read through zoneinfo as pandas reads it.
 
     Examples
     --------
