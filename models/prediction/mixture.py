@@ -42,6 +42,7 @@ numerically for ``100 <= lam <= 1e7``), so what the recursion drops is far below
 from __future__ import annotations
 
 import math
+import typing
 from collections.abc import Iterable
 from dataclasses import dataclass
 from numbers import Integral, Real
@@ -385,6 +386,9 @@ def _gather(lam: NDArray[np.floating], idx: IntArray) -> FloatArray:
     """
     n = idx.size
     contiguous = idx[-1] - idx[0] == n - 1 and bool(np.all(np.diff(idx) == 1))
+    if contiguous and lam.dtype == np.float64 and lam.T.flags.c_contiguous:
+        # Already window-major (as expected_counts gives it): the block is a view, not a copy.
+        return typing.cast(FloatArray, lam.T[idx[0] : idx[-1] + 1])
     cols = lam[:, idx[0] : idx[-1] + 1] if contiguous else lam[:, idx]
     out = np.empty((n, lam.shape[0]))
     for d0 in range(0, lam.shape[0], _GATHER_TILE):

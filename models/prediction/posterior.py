@@ -144,6 +144,11 @@ class CompactPosterior:
             out[j] = sd * rng.standard_normal(sd.shape)
         return out
 
+    def memo(self, key: str, build: Callable[[], Any]) -> Any:
+        """``build()`` once while this version is in use: per-version values of the query path
+        (kept with the version's other caches, for the most recently used versions)."""
+        return _cached(self, key, build)
+
     @property
     def noise_cache(self) -> tuple[threading.Lock, OrderedDict[int, np.ndarray]]:
         """Per-bin gamma noise already computed for this version (see :mod:`models.prediction.windows`),

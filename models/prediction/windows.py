@@ -31,6 +31,7 @@ from __future__ import annotations
 
 import datetime as dt
 import re
+import zoneinfo
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import NotRequired, TypedDict
@@ -55,6 +56,7 @@ __all__ = [
     "ForecastRow",
     "expected_counts",
     "forecast",
+    "iso_local",
     "parse_instant",
     "parse_step",
     "split_range",
@@ -64,7 +66,12 @@ DEFAULT_LEVELS: tuple[float, ...] = (0.8, 0.95)
 #: Furthest a window may end after the last history day, in days (trend extrapolation beyond a
 #: year is rarely trustworthy).
 MAX_HORIZON_DAYS = 400
-_BLOCK_BINS = 2048
+_BLOCK_BINS = 256
+# Endpoint rows (of every draw) handled together while interpolating: 2 x 32 x 2,000 draws of
+# float64 is 1 MB, within a core's L2 cache.
+_TILE_ROWS = 32
+# Up to this many instants are formatted one by one (see iso_local).
+_FEW_INSTANTS = 64
 _NS_PER_MINUTE = 60 * 10**9
 # Keeps the bin-noise streams apart from the latent forward simulation, which uses the seed alone.
 _NOISE_STREAM = 0x6E6F697365
@@ -191,25 +198,26 @@ def _check_windows(
     starts: pd.DatetimeIndex,
     ends: pd.DatetimeIndex,
     horizon_days: int,
-) -> None:
+) -> tuple[np.ndarray, np.ndarray]:
+    """Refuse windows outside what ``posterior`` answers; their starts and ends in nanoseconds."""
     if len(starts) != len(ends):
         raise WindowError(f"{len(starts)} window starts but {len(ends)} ends")
     if len(starts) == 0:
         raise WindowError("no windows requested; give at least one start and end")
     if starts.tz is None or ends.tz is None:
         raise WindowError("window times must carry a UTC offset or zone")
-    bad = np.flatnonzero(ends.as_unit("ns").asi8 <= starts.as_unit("ns").asi8)
+    s_ns, e_ns = starts.as_unit("ns").asi8, ends.as_unit("ns").asi8
+    bad = np.flatnonzero(e_ns <= s_ns)
     if bad.size:
         i = int(bad[0])
         raise WindowError(
             f"window {i}: end {ends[i].isoformat()} is not after start {starts[i].isoformat()}",
             window=i,
         )
-    cal = posterior.calendar
-    first = pd.Timestamp(cal.first_day).tz_localize(
-        cal.tz, nonexistent="shift_forward", ambiguous=True
+    first, limit = posterior.memo(
+        f"window-bounds-{horizon_days}", lambda: _window_bounds(posterior, horizon_days)
     )
-    early = np.flatnonzero(starts.as_unit("ns").asi8 < first.value)
+    early = np.flatnonzero(s_ns < first.value)
     if early.size:
         i = int(early[0])
         raise WindowError(
@@ -217,9 +225,7 @@ def _check_windows(
             f"({first.isoformat()}); windows must start on or after it",
             window=i,
         )
-    limit_day = posterior.history_end + dt.timedelta(days=horizon_days)
-    limit = pd.Timestamp(limit_day).tz_localize(cal.tz, nonexistent="shift_forward", ambiguous=True)
-    late = np.flatnonzero(ends.as_unit("ns").asi8 > limit.value)
+    late = np.flatnonzero(e_ns > limit.value)
     if late.size:
         i = int(late[0])
         raise WindowError(
@@ -227,6 +233,20 @@ def _check_windows(
             f"days after the history ({limit.isoformat()})",
             window=i,
         )
+    return s_ns, e_ns
+
+
+def _window_bounds(
+    posterior: CompactPosterior, horizon_days: int
+) -> tuple[pd.Timestamp, pd.Timestamp]:
+    """The first instant of the history and the latest window end, local midnights."""
+    cal = posterior.calendar
+    first = pd.Timestamp(cal.first_day).tz_localize(
+        cal.tz, nonexistent="shift_forward", ambiguous=True
+    )
+    limit_day = posterior.history_end + dt.timedelta(days=horizon_days)
+    limit = pd.Timestamp(limit_day).tz_localize(cal.tz, nonexistent="shift_forward", ambiguous=True)
+    return first, limit
 
 
 def expected_counts(
@@ -241,10 +261,8 @@ def expected_counts(
     Windows are grouped into clusters of overlapping or touching spans, each laid on the model's
     bin grid in blocks, so memory stays bounded however far apart or long the windows are.
     """
-    _check_windows(posterior, starts, ends, horizon_days)
-    cal = posterior.calendar
-    bin_ns = cal.bin_minutes * _NS_PER_MINUTE
-    s_ns, e_ns = starts.as_unit("ns").asi8, ends.as_unit("ns").asi8
+    s_ns, e_ns = _check_windows(posterior, starts, ends, horizon_days)
+    bin_ns = posterior.calendar.bin_minutes * _NS_PER_MINUTE
     order = np.argsort(s_ns, kind="stable")
     result = np.empty((len(starts), posterior.n_draws))
     cluster: list[int] = []
@@ -294,12 +312,13 @@ def _integrate_cluster(
     points = np.concatenate([s_ns[members], e_ns[members]])
     index = np.clip(np.searchsorted(edges, points, side="right") - 1, 0, len(edges) - 1)
     open_before = table.open_share_before(index + (span.start or 0), points)
-    cumulative = np.empty((len(points), posterior.n_draws))
+    n = len(members)
     offset = np.zeros(posterior.n_draws)
     week = posterior.week_by_cell
     draws = posterior.as_float64
     trend = draws["trend"][None, :]
     holiday_effect = draws["holiday_effect"][None, :]
+    holiday_finite = bool(np.isfinite(holiday_effect).all())
     spec = posterior.spec
     phase = table.phase[span]
     if spec.annual_harmonics:
@@ -309,12 +328,13 @@ def _integrate_cluster(
     for b0 in range(0, len(edges), _BLOCK_BINS):
         b1 = min(b0 + _BLOCK_BINS, len(edges))
         block = slice(b0, b1)
-        log_rate = (
-            week[dow[block], slot[block]]
-            + years[block, None] * trend
-            + holiday[block, None] * holiday_effect
-            + latent[day[block]]
-        )
+        # week + trend + holiday + latent, added in that order; a block without holidays skips
+        # adding holiday x effect, which is then exactly zero (the effect draws being finite).
+        log_rate = week[dow[block], slot[block]]
+        log_rate += years[block, None] * trend
+        if not holiday_finite or holiday[block].any():
+            log_rate += holiday[block, None] * holiday_effect
+        log_rate += latent[day[block]]
         if spec.annual_harmonics:
             log_rate += annual_basis(phase[block], spec.annual_harmonics) @ draws_annual
         if spec.within_day:
@@ -333,23 +353,86 @@ def _integrate_cluster(
         per_bin = np.multiply(rate, (open_share[block] * bin_hours)[:, None], out=running[1:])
         if spec.observation == "negbin":
             per_bin *= _cached_noise(posterior, edges[block] // bin_ns, slot[block])
-        np.cumsum(running, axis=0, out=running)
+        # The running sum row by row: the same sequential additions as np.cumsum along the
+        # bins, which walks a (bin, draw) array column by column and costs over twice as much.
+        for k in range(1, len(running)):
+            np.add(running[k - 1], running[k], out=running[k])
         # An endpoint lies a share f of the way through its bin's open part: its integral is
         # running[l] (1 - f) + running[l + 1] f. Two gathers per endpoint instead of four, and
         # f is exactly 0 or 1 in closed time, so closed time adds exactly nothing.
         shares = open_share[block][local]
         f = np.divide(open_before[here], shares, out=np.zeros(len(here)), where=shares > 0)
-        after = running[local + 1]
-        after *= f[:, None]
-        before = running[local]
-        before *= (1.0 - f)[:, None]
-        before += after
-        cumulative[here] = before
+        # Starts first: a window's end lies in the same block as its start or a later one, and
+        # its row of ``out`` holds the integral up to its start until the end is reached.
+        starting = np.searchsorted(here, n)
+        _interpolate(running, local[:starting], f[:starting], members[here[:starting]], out)
+        ending = slice(starting, None)
+        _interpolate(running, local[ending], f[ending], members[here[ending] - n], out, end=True)
         offset = running[-1].copy()
-    n = len(members)
-    window = np.subtract(cumulative[n:], cumulative[:n], out=cumulative[n:])
-    # Rounding could leave a window of closed bins a hair below zero; counts are never negative.
-    out[members] = np.maximum(window, 0.0, out=window)
+
+
+def _interpolate(
+    running: np.ndarray,
+    local: np.ndarray,
+    f: np.ndarray,
+    rows: np.ndarray,
+    out: np.ndarray,
+    *,
+    end: bool = False,
+) -> None:
+    """The integral ``c = running[local] (1 - f) + running[local + 1] f`` at endpoints.
+
+    For window starts ``out[rows] = c``; for ends (``end``), ``out[rows] = max(c - out[rows],
+    0)``, the window's integral: rounding could leave a window of closed bins a hair below zero,
+    and counts are never negative. Done a tile of rows at a time, so that each tile's gathered
+    rows stay in cache between the gathers, the products and the store (whole-array temporaries
+    of every endpoint's draws cost more in memory traffic than the arithmetic).
+    """
+    if len(rows) == 0:
+        return
+    # An endpoint on a bin's edge (f exactly 0 or 1, as for windows cut on the bin grid) has
+    # c = running[local + f] exactly: the product with the zero share is exactly zero when the
+    # running sums are finite, which the last row (sums of non-negative terms) tells.
+    whole = (f == 0.0) | (f == 1.0)
+    if whole.any() and np.isfinite(running[-1]).all():
+        edge = local[whole] + (f[whole] == 1.0)
+        _at_edges(running, edge, rows[whole], out, end=end)
+        partial = ~whole
+        local, f, rows = local[partial], f[partial], rows[partial]
+        if len(rows) == 0:
+            return
+    draws = running.shape[1]
+    tile = min(_TILE_ROWS, len(rows))
+    before, after = np.empty((tile, draws)), np.empty((tile, draws))
+    for t0 in range(0, len(rows), tile):
+        t1 = min(t0 + tile, len(rows))
+        b, a = before[: t1 - t0], after[: t1 - t0]
+        np.take(running, local[t0:t1] + 1, axis=0, out=a, mode="clip")
+        a *= f[t0:t1, None]
+        np.take(running, local[t0:t1], axis=0, out=b, mode="clip")
+        b *= (1.0 - f[t0:t1])[:, None]
+        b += a
+        if end:
+            b -= out[rows[t0:t1]]
+            np.maximum(b, 0.0, out=b)
+        out[rows[t0:t1]] = b
+
+
+def _at_edges(
+    running: np.ndarray, edge: np.ndarray, rows: np.ndarray, out: np.ndarray, *, end: bool
+) -> None:
+    """:func:`_interpolate` for endpoints on bin edges: ``c = running[edge]``."""
+    if not end:
+        out[rows] = running[edge]
+        return
+    tile = min(_TILE_ROWS, len(rows))
+    buffer = np.empty((tile, running.shape[1]))
+    for t0 in range(0, len(rows), tile):
+        t1 = min(t0 + tile, len(rows))
+        c = np.take(running, edge[t0:t1], axis=0, out=buffer[: t1 - t0], mode="clip")
+        c -= out[rows[t0:t1]]
+        np.maximum(c, 0.0, out=c)
+        out[rows[t0:t1]] = c
 
 
 def _cached_noise(
@@ -364,14 +447,17 @@ def _cached_noise(
     lock, cache = posterior.noise_cache
     out = np.empty((len(bin_ids), posterior.n_draws))
     with lock:
-        missing = []
+        missing, found, columns = [], [], []
         for j, bin_id in enumerate(bin_ids.tolist()):
             column = cache.get(bin_id)
             if column is None:
                 missing.append(j)
             else:
                 cache.move_to_end(bin_id)
-                out[j] = column
+                found.append(j)
+                columns.append(column)
+    if columns:  # one conversion to float64 for all cached bins, not one per bin
+        out[found] = np.stack(columns)
     if missing:
         rows = np.asarray(missing)
         # Rounded to float32 as stored, so a bin's noise is the same computed or cached.
@@ -451,26 +537,70 @@ class Forecast:
 def _rows(
     summary: MixtureSummary, starts: pd.DatetimeIndex, ends: pd.DatetimeIndex, tz: str
 ) -> list[ForecastRow]:
-    local_starts = starts.tz_convert(tz)
-    local_ends = ends.tz_convert(tz)
+    # Every column is turned into Python values once (``tolist``), never by indexing per window.
+    start_text, end_text = iso_local(starts, tz), iso_local(ends, tz)
+    means, sds, zeros = summary.mean.tolist(), summary.sd.tolist(), summary.p_zero.tolist()
+    intervals = [
+        (_key(level), lo.tolist(), hi.tolist()) for level, (lo, hi) in summary.intervals.items()
+    ]
+    quantiles = [(_key(q), v.tolist()) for q, v in summary.quantiles.items()]
+    tails = [(str(k), p.tolist()) for k, p in summary.at_least.items()]
     rows = []
-    for i in range(len(starts)):
+    for i in range(len(start_text)):
         row: ForecastRow = {
-            "start": local_starts[i].isoformat(),
-            "end": local_ends[i].isoformat(),
-            "mean": float(summary.mean[i]),
-            "sd": float(summary.sd[i]),
-            "p_zero": float(summary.p_zero[i]),
-            "intervals": {
-                _key(level): [int(lo[i]), int(hi[i])]
-                for level, (lo, hi) in summary.intervals.items()
-            },
-            "quantiles": {_key(q): int(v[i]) for q, v in summary.quantiles.items()},
+            "start": start_text[i],
+            "end": end_text[i],
+            "mean": means[i],
+            "sd": sds[i],
+            "p_zero": zeros[i],
+            "intervals": {key: [lo[i], hi[i]] for key, lo, hi in intervals},
+            "quantiles": {key: v[i] for key, v in quantiles},
         }
-        if summary.at_least:
-            row["at_least"] = {str(k): float(p[i]) for k, p in summary.at_least.items()}
+        if tails:
+            row["at_least"] = {key: p[i] for key, p in tails}
         rows.append(row)
     return rows
+
+
+def iso_local(instants: pd.DatetimeIndex, tz: str) -> list[str]:
+    """ISO 8601 texts of ``instants`` in the zone ``tz``, as ``Timestamp.isoformat`` gives them.
+
+    A few whole-second instants are formatted by the standard library, one by one; many
+    whole-second instants at whole-minute offsets (every window the service cuts) all at once by
+    numpy; anything else (fractions of a second, offsets in seconds) is left to pandas. ``tz`` is
+    an IANA zone name, read through zoneinfo as pandas reads it.
+
+    Examples
+    --------
+    >>> iso_local(pd.DatetimeIndex(["2026-03-08T07:30Z", "2026-03-08T08:30Z"]), "America/Chicago")
+    ['2026-03-08T01:30:00-06:00', '2026-03-08T03:30:00-05:00']
+    """
+    utc_ns = instants.as_unit("ns").asi8
+    if len(utc_ns) <= _FEW_INSTANTS and not np.any(utc_ns % 10**9):
+        # A few instants: the standard library is quicker than setting up the vectorised pass
+        # (pandas keeps zones as zoneinfo objects, so both read the same zone rules).
+        zone = zoneinfo.ZoneInfo(tz)
+        return [dt.datetime.fromtimestamp(ns // 10**9, zone).isoformat() for ns in utc_ns.tolist()]
+    local = instants.tz_convert(tz)
+    wall_ns = local.tz_localize(None).as_unit("ns").asi8
+    offset_s = (wall_ns - utc_ns) // 10**9
+    if np.any(wall_ns % 10**9) or np.any(offset_s % 60):
+        return [stamp.isoformat() for stamp in local]
+    walls = np.datetime_as_string((wall_ns // 10**9).astype("datetime64[s]"), unit="s").tolist()
+    minutes = offset_s // 60
+    signs = np.where(minutes < 0, "-", "+")
+    hours, mins = np.divmod(np.abs(minutes), 60)
+    names: dict[tuple[str, int, int], str] = {}
+    texts = []
+    for wall, sign, hour, minute in zip(
+        walls, signs.tolist(), hours.tolist(), mins.tolist(), strict=True
+    ):
+        key = (sign, hour, minute)
+        suffix = names.get(key)
+        if suffix is None:
+            suffix = names[key] = f"{sign}{hour:02d}:{minute:02d}"
+        texts.append(wall + suffix)
+    return texts
 
 
 def _key(value: float) -> str:

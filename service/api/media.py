@@ -10,11 +10,12 @@ from collections.abc import Callable
 from typing import Any
 
 from fastapi.responses import Response
+from pydantic import BaseModel
 
 from models.store import StoredVersion
 from service.api.errors import ApiError
 
-__all__ = ["CSV_RESPONSES", "csv_response", "table_route", "wants_csv"]
+__all__ = ["CSV_RESPONSES", "csv_response", "json_response", "table_route", "wants_csv"]
 
 #: OpenAPI ``responses`` entry of a route that may answer CSV.
 CSV_RESPONSES: dict[int | str, dict[str, Any]] = {
@@ -84,6 +85,20 @@ def csv_response(text: str, stored: StoredVersion, *, caution: str, name: str) -
             **version_headers(stored),
             "X-Caution": caution,
         },
+    )
+
+
+def json_response(document: BaseModel, stored: StoredVersion) -> Response:
+    """A JSON answer of a document already validated as its response model, with the version
+    headers.
+
+    Serialised once, as the route's ``response_model`` would (keys left unset stay out), without
+    the second validation FastAPI gives a returned model.
+    """
+    return Response(
+        document.model_dump_json(exclude_unset=True),
+        media_type="application/json",
+        headers=version_headers(stored),
     )
 
 

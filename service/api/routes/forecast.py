@@ -8,7 +8,7 @@ from fastapi import Query
 
 from service.api.deps import SeriesCall, SeriesCallDep, series_router
 from service.api.forecasting import ForecastPlan, Windows, answer, read_range, window_index
-from service.api.media import csv_response, table_route
+from service.api.media import csv_response, json_response, table_route
 from service.api.schemas import BandsQuery, ForecastRequest, ForecastResponse
 from service.queries.forecast import CAUTION, forecast_csv
 
@@ -25,7 +25,7 @@ async def _answer(call: SeriesCall, plan: ForecastPlan, *, field: str) -> Any:
     if call.csv:
         text = forecast_csv(doc.model_dump(exclude_unset=True))
         return csv_response(text, call.stored, caution=CAUTION, name="forecast")
-    return doc
+    return json_response(doc, call.stored)
 
 
 @table_route(router.post, "/forecast", "Predictive counts for windows", ForecastResponse)

@@ -15,6 +15,7 @@ from models.exceptions import WindowError
 from models.prediction.windows import (
     expected_counts,
     forecast,
+    iso_local,
     parse_instant,
     parse_step,
     split_range,
@@ -565,3 +566,37 @@ class TestStrictInstants:
     def test_an_impossible_date_is_refused(self) -> None:
         with pytest.raises(WindowError, match="not a valid calendar date"):
             parse_instant("2026-02-30T09:00", tz=CHICAGO)
+
+
+class TestIsoLocal:
+    """Row times, checked against pandas' own ``Timestamp.isoformat`` in the zone."""
+
+    @pytest.mark.parametrize(
+        "tz",
+        # Whole-hour, half-hour (Kolkata, St John's, Lord Howe's 30-minute daylight saving) and
+        # 45-minute (Chatham) offsets.
+        [
+            "UTC",
+            CHICAGO,
+            "Asia/Kolkata",
+            "America/St_Johns",
+            "Australia/Lord_Howe",
+            "Pacific/Chatham",
+        ],
+    )
+    @pytest.mark.parametrize("count", [3, 500])  # one by one, and the vectorised pass
+    def test_matches_pandas_isoformat(self, tz: str, count: int) -> None:
+        instants = pd.date_range("2026-01-01", periods=count, freq="1013min", tz="UTC")
+        expected = [stamp.isoformat() for stamp in instants.tz_convert(tz)]  # pandas, per instant
+        assert iso_local(instants, tz) == expected
+
+    def test_across_a_daylight_saving_change_and_with_fractions_of_a_second(self) -> None:
+        # US daylight saving began 2026-03-08 at 02:00 local (common practice, no source): the
+        # offset goes from -06:00 to -05:00; a fraction of a second is printed as pandas does.
+        instants = pd.DatetimeIndex(["2026-03-08T07:30Z", "2026-03-08T08:30Z"])
+        assert iso_local(instants, CHICAGO) == [
+            "2026-03-08T01:30:00-06:00",
+            "2026-03-08T03:30:00-05:00",
+        ]
+        fractional = pd.DatetimeIndex(["2026-03-08T08:30:00.25Z"])
+        assert iso_local(fractional, CHICAGO) == [fractional.tz_convert(CHICAGO)[0].isoformat()]
