@@ -13,6 +13,10 @@ For the windows ``bench/evidence.py`` scores (same series, origins and horizons)
 * **centred 8-week mean**: the mean of the same weekday and time over the four weeks before *and*
   the four weeks after. Hindsight too: a profile free of drift, with twice the weeks.
 
+Beside them, the lag-1 autocorrelation of the day-level surprise (log of a day's count over its
+weekday-mean forecast, on consecutive scored days): how much of today's level a forecaster could
+carry over from yesterday.
+
 Run: ``.venv/bin/python bench/evidence_bounds.py`` (a minute); ``bench/evidence.py`` includes the
 same table in docs/evidence.md.
 """
@@ -62,6 +66,7 @@ def bounds_rows(
 ) -> dict[str, float]:
     """RMSE of the weekday mean, the Poisson floor and the two hindsight references."""
     y_all, wm_all, day_all, centred_all = [], [], [], []
+    surprise: dict[dt.date, float] = {}
     for origin in origins:
         mask = _scored(binned, origin, horizon)
         if not mask.any():
@@ -80,6 +85,8 @@ def bounds_rows(
             on = day == d
             if wm[on].sum() > 0:
                 scaled[on] = wm[on] * y[on].sum() / wm[on].sum()
+                if y[on].sum() > 0:
+                    surprise[d] = float(np.log(y[on].sum() / wm[on].sum()))
         y_all.append(y)
         wm_all.append(wm)
         day_all.append(scaled)
@@ -89,7 +96,11 @@ def bounds_rows(
     def rmse(pred: list[np.ndarray]) -> float:
         return float(np.sqrt(np.mean((np.concatenate(pred) - y) ** 2)))
 
+    after = dt.timedelta(days=1)
+    pairs = [(v, surprise[d + after]) for d, v in surprise.items() if d + after in surprise]
+    lag1 = float(np.corrcoef(np.array(pairs).T)[0, 1]) if len(pairs) > 2 else float("nan")
     return {
+        "lag1": lag1,
         "weekday_mean": rmse(wm_all),
         "poisson_floor": float(np.sqrt(y.mean())),
         "day_total_known": rmse(day_all),
@@ -101,8 +112,9 @@ def bounds_table(datasets: dict, modes: tuple[str, ...]) -> list[str]:
     """Markdown rows: per series and mode, each reference's RMSE and its skill over the mean."""
     lines = [
         "| series | mode | weekday mean RMSE | Poisson floor (bound) | day total known "
-        "(hindsight) | centred 8-week mean (hindsight) |",
-        "|---|---|---|---|---|---|",
+        "(hindsight) | centred 8-week mean (hindsight) | day-level surprise, lag-1 "
+        "autocorrelation |",
+        "|---|---|---|---|---|---|---|",
     ]
     for name, dataset in datasets.items():
         binned = dataset.load()
@@ -121,7 +133,15 @@ def bounds_table(datasets: dict, modes: tuple[str, ...]) -> list[str]:
                 else f"{r[k]:.1f} ({1 - r[k] / base:+.0%})"
                 for k in ("poisson_floor", "day_total_known", "centred_mean")
             ]
-            lines.append(f"| {name} | {mode} | {base:.1f} | " + " | ".join(cells) + " |")
+            lines.append(
+                f"| {name} | {mode} | {base:.1f} | "
+                + " | ".join(cells)
+                + (
+                    f" | {r['lag1']:.2f} |"
+                    if np.isfinite(r["lag1"])
+                    else " | - (no consecutive days) |"
+                )
+            )
     return lines
 
 
