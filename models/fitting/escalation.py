@@ -85,11 +85,7 @@ def remedy(diagnostics: Any, *, observation: str, bin_minutes: int) -> str:
 def attempt_record(options: FitOptions, diagnostics: Any, seconds: float) -> dict[str, Any]:
     """What one attempt used and got, for the outcome and the manifest."""
     return {
-        "sampler": options.sampler,
-        "draws": options.draws,
-        "tune": options.tune,
-        "chains": options.chains,
-        "target_accept": options.target_accept,
+        **options.sampler_settings(),
         "ok": bool(diagnostics.ok),
         "divergences": int(diagnostics.divergences),
         "min_ess_bulk": round(float(diagnostics.min_ess_bulk), 1),

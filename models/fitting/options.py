@@ -87,6 +87,16 @@ class FitOptions:
             "cores": self.cores,
         }
 
+    def sampler_settings(self) -> dict[str, Any]:
+        """The settings a fit's record names: sampler, draws, tune, chains, target acceptance."""
+        return {
+            "sampler": self.sampler,
+            "draws": self.draws,
+            "tune": self.tune,
+            "chains": self.chains,
+            "target_accept": self.target_accept,
+        }
+
     def with_changes(self, **changes: Any) -> FitOptions:
         """A copy with some settings changed."""
         return replace(self, **changes)

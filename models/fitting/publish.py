@@ -133,11 +133,7 @@ def fit_section(
     failing gate (``degraded``, with the ``problems``), the retry and every attempt."""
     degraded = not diagnostics.ok
     return {
-        "sampler": options.sampler,
-        "draws": options.draws,
-        "tune": options.tune,
-        "chains": options.chains,
-        "target_accept": options.target_accept,
+        **options.sampler_settings(),
         "forced": degraded,
         "degraded": degraded,
         "problems": list(diagnostics.problems) if degraded else [],
