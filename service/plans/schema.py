@@ -25,6 +25,7 @@ is fitted, and every bad entry is reported with its name and field. Example::
     chains = 4
     seed = 20261202
     sampler = "pymc"
+    retry = true                           # refit once with stronger settings if the gate refuses
 
     [[series]]
     name = "desk-a"
@@ -71,7 +72,14 @@ _MODEL_KEYS = {
     "annual": int,
     "within_day": int,
 }
-_SAMPLING_KEYS = {"draws": int, "tune": int, "chains": int, "seed": int, "sampler": str}
+_SAMPLING_KEYS = {
+    "draws": int,
+    "tune": int,
+    "chains": int,
+    "seed": int,
+    "sampler": str,
+    "retry": bool,
+}
 _SOURCE_KEYS = {"events", "counts", "time_column"}
 
 

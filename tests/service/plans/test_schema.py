@@ -48,6 +48,7 @@ counts = "b.csv"
 zone = "Europe/Dublin"
 [series.sampling]
 chains = 2
+retry = false
 """,
             )
         )
@@ -55,8 +56,10 @@ chains = 2
         assert (a.zone, b.zone) == ("America/Chicago", "Europe/Dublin")
         assert a.opening == b.opening == "Mon-Fri 07:00-19:00"
         assert a.model == b.model == {"observation": DEFAULT_OBSERVATION, "trend": False}
-        assert a.sampling == {"draws": 300} and b.sampling == {"draws": 300, "chains": 2}
+        assert a.sampling == {"draws": 300}
+        assert b.sampling == {"draws": 300, "chains": 2, "retry": False}
         assert b.fit_options().chains == 2 and b.fit_options().draws == 300
+        assert a.fit_options().retry and not b.fit_options().retry
         # Relative paths are the plan file's folder's.
         assert a.members[0].path == str((inputs / "a.csv").resolve())
 
