@@ -278,7 +278,9 @@ def describe(spec: ModelSpec) -> str:
         spec.annual_harmonics
     )
     terms += ["daily latent AR(1)"] if spec.latent_daily else []
+    terms += ["its loading per weekday and on holidays"] * spec.latent_by_weekday
     terms += [f"within-day shape ({spec.within_day} cosines)"] * bool(spec.within_day)
+    terms += ["unusual days of history left out"] * (spec.unusual_days == "leave-out")
     noise = "negative binomial" if spec.observation == "negbin" else "Poisson"
     if spec.observation == "negbin" and spec.dispersion_by_slot and spec.has_time_of_day:
         noise += " with a dispersion per time of day"
@@ -510,7 +512,28 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--chains", type=int, default=None, help="default: ratecast fit's")
     parser.add_argument("--quick", action="store_true", help="three origins, 200 draws")
     parser.add_argument("--table-only", action="store_true", help="rewrite evidence.md only")
+    parser.add_argument(
+        "--unusual-days",
+        choices=("keep", "leave-out"),
+        default=None,
+        help="a variant: every series' model with this unusual_days setting (default: as set "
+        "per series above); write it to its own --docs folder",
+    )
+    parser.add_argument(
+        "--latent-by-weekday",
+        choices=("on", "off"),
+        default=None,
+        help="a variant: every series' model with weekday loadings on the daily latent on or off",
+    )
     args = parser.parse_args(argv)
+    changes: dict[str, Any] = {}
+    if args.unusual_days is not None:
+        changes["unusual_days"] = args.unusual_days
+    if args.latent_by_weekday is not None:
+        changes["latent_by_weekday"] = args.latent_by_weekday == "on"
+    for name, dataset in DATASETS.items():
+        if changes:
+            DATASETS[name] = replace(dataset, spec=dataset.spec.with_(**changes))
     options = FitOptions(max_stored_draws=1000)
     if args.draws or args.tune or args.chains:
         options = options.with_changes(

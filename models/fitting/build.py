@@ -14,10 +14,15 @@ import pytensor.tensor as pt
 from models.fitting.gate import unobserved_cells
 from models.fitting.geometry import choose_geometry
 from models.ratemodel.bases import annual_basis, within_day_basis, year_phase
-from models.ratemodel.design import JointData, ModelData
+from models.ratemodel.design import DAY_KINDS, JointData, ModelData
 from models.ratemodel.spec import ModelSpec
 
 __all__ = ["build_joint_model", "build_model"]
+
+
+#: Sd of each weekday's log loading on the daily deviation (``spec.latent_by_weekday``): a
+#: weekday's deviations from about a third to three times the typical size are well inside it.
+LATENT_LOADING_SIGMA = 0.5
 
 
 def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
@@ -126,13 +131,26 @@ def build_model(data: ModelData, spec: ModelSpec) -> pm.Model:
                 )
             else:
                 innovation = pm.Normal("latent_innovation", 0.0, 1.0, dims="day")
+                path = _ar1_from_innovations(innovation, rho, latent_sd, data.n_days)
+                if spec.latent_by_weekday:
+                    # Each weekday feels the day-level deviation with its own loading (log
+                    # loadings sum to zero over the kinds seen, so latent_sd stays the overall
+                    # size): a commuter station's weekdays move a few percent, its weekends
+                    # several times more (docs/evidence.md).
+                    # Holidays are a kind of their own: one holiday effect leaves Christmas and a
+                    # quiet federal Monday far apart, and that must not widen ordinary Mondays.
+                    kinds = data.calendar.day_kinds(np.arange(data.n_days))
+                    seen = np.isin(np.arange(len(DAY_KINDS)), np.unique(kinds[feats.day]))
+                    log_loading = _effect(
+                        "latent_log_loading", LATENT_LOADING_SIGMA, (seen,), ("day_kind",), model
+                    )
+                    loading = pm.Deterministic(
+                        "latent_loading", pt.exp(log_loading), dims="day_kind"
+                    )
+                    path = path * loading[kinds]
                 latent = pm.Deterministic(
                     "latent",
-                    _level_free(
-                        _ar1_from_innovations(innovation, rho, latent_sd, data.n_days),
-                        data.n_days,
-                        trend=spec.trend,
-                    ),
+                    _level_free(path, data.n_days, trend=spec.trend),
                     dims="day",
                 )
             log_rate = log_rate + latent[feats.day]

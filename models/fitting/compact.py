@@ -65,6 +65,7 @@ def compact_from_fit(
         annual=take("annual", ("annual_term",)) if spec.annual_harmonics else None,
         within_day=take("within_day", ("day", "within_term")) if spec.within_day else None,
         within_day_sd=take("within_day_sd", ("within_term",)) if spec.within_day else None,
+        latent_loading=take("latent_loading", ("day_kind",)) if spec.latent_by_weekday else None,
     )
 
 

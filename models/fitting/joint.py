@@ -52,6 +52,11 @@ def make_joint_data(histories: dict[str, BinnedSeries], spec: ModelSpec) -> Join
             f"annual_harmonics={spec.annual_harmonics} and within_day={spec.within_day}: the "
             "annual and within-day terms are not available for joint fits yet; set both to 0"
         )
+    if spec.latent_by_weekday:
+        raise InputError(
+            "latent_by_weekday=True: weekday loadings on the daily deviation are not available "
+            "for joint fits yet; set it to False"
+        )
     names = tuple(check_series_name(n) for n in histories)
     zones = {h.tz for h in histories.values()}
     widths = {h.bin_minutes for h in histories.values()}

@@ -88,6 +88,7 @@ def fit_and_publish(
             "bin_minutes": binned.bin_minutes,
             "observed_bins": len(binned.count),
             "arrivals": binned.total,
+            "unusual_days_left_out": [d.isoformat() for d in data.left_out_days],
             **(source or {}),
         },
         "fit": {

@@ -61,6 +61,7 @@ from __future__ import annotations
 
 import datetime as dt
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -69,7 +70,7 @@ import pandas as pd
 from scipy import special
 
 from models.exceptions import CountError, InputError, WindowError
-from models.prediction.posterior import CompactPosterior
+from models.prediction.posterior import CompactPosterior, weekday_loading
 from models.prediction.windows import MAX_HORIZON_DAYS, expected_counts
 from models.ratemodel.bases import within_day_basis
 
@@ -231,7 +232,8 @@ def _without_latent(posterior: CompactPosterior) -> CompactPosterior:
     return replace(
         posterior,
         latent=np.zeros_like(posterior.latent),
-        spec=replace(posterior.spec, latent_daily=False),
+        latent_loading=None,
+        spec=replace(posterior.spec, latent_daily=False, latent_by_weekday=False),
     )
 
 
@@ -390,7 +392,9 @@ def update_forecast(
     rho = posterior.latent_rho.astype(np.float64)
     sd = posterior.latent_sd.astype(np.float64)
     if latent_on:
-        m = rho**ahead * posterior.latent[:, -1].astype(np.float64)
+        # Deviations are a weekday's loading times the AR(1) state (ones without loadings).
+        load = weekday_loading(posterior, np.array([posterior.n_days - 1, day_index]))
+        m = load[1] * rho**ahead * posterior.latent[:, -1].astype(np.float64) / load[0]
         power = rho**2
         # 1 + rho^2 + ... + rho^(2(k-1)), written to stay exact as rho^2 -> 1.
         terms = np.where(
@@ -398,7 +402,7 @@ def update_forecast(
             (1.0 - power**ahead) / np.where(np.abs(1.0 - power) > 1e-8, 1.0 - power, 1.0),
             float(ahead),
         )
-        v = sd**2 * terms
+        v = (load[1] * sd) ** 2 * terms
     else:
         m, v = np.zeros(draws), np.zeros(draws)
     random = v > 0
@@ -434,8 +438,9 @@ def update_forecast(
         chosen_z[rows] = _sample_from(z, cdf, u[b0 : b0 + _DRAW_BLOCK])
 
     lam = _updated_windows(
-        base, starts, ends, index, chosen_z, rho[index], sd[index], today, rng, horizon_days
-    )
+        base, starts, ends, index, chosen_z, rho[index], sd[index], today, rng, horizon_days,
+        loading=_loading_from(posterior, today, index),
+    )  # fmt: skip
     prior_scale = np.exp(m + 0.5 * v)
     return IntradayUpdate(
         lam=lam,
@@ -459,12 +464,15 @@ def _updated_windows(
     today: dt.date,
     rng: np.random.Generator,
     horizon_days: int,
+    *,
+    loading: Callable[[int], FloatArray],
 ) -> FloatArray:
     tz = base.calendar.tz
     p_starts, p_ends, owner, dates = _pieces_by_day(starts, ends, tz)
     mu = expected_counts(base, p_starts, p_ends, horizon_days=horizon_days)[index]
     offset = (dates - np.datetime64(today, "D")).astype(np.int64)
-    path = _continue_path(today_z, rho, sd, int(offset.max()), rng)
+    days_after = int(offset.max())
+    path = _continue_path(today_z, rho, sd, days_after, rng, loading=loading(days_after))
     pieces = mu * np.exp(path[:, offset])
     out = np.zeros((index.size, len(starts)))
     np.add.at(out.T, owner, pieces.T)
@@ -480,12 +488,13 @@ def _flat(posterior: CompactPosterior, *, noise: bool = True) -> CompactPosterio
     ``noise=False`` also drops the fixed per-bin gamma noise of a negative binomial series (the
     observed bins' likelihood integrates their noise out instead).
     """
-    spec = replace(posterior.spec, latent_daily=False, within_day=0)
+    spec = replace(posterior.spec, latent_daily=False, latent_by_weekday=False, within_day=0)
     if not noise:
         spec = replace(spec, observation="poisson")
     return replace(
         posterior,
         latent=np.zeros_like(posterior.latent),
+        latent_loading=None,
         within_day=None,
         within_day_sd=None,
         dispersion=posterior.dispersion if noise else None,
@@ -776,21 +785,47 @@ def _shaped_windows(
         offset = (dates[later] - np.datetime64(today, "D")).astype(np.int64)
         rho = posterior.latent_rho.astype(np.float64)[index]
         sd = posterior.latent_sd.astype(np.float64)[index]
-        path = _continue_path(today_z, rho, sd, int(offset.max()), rng)
+        days_after = int(offset.max())
+        load = _loading_from(posterior, today, index)(days_after)
+        path = _continue_path(today_z, rho, sd, days_after, rng, loading=load)
         np.add.at(out.T, owner[later], (mu[index] * np.exp(path[:, offset])).T)
     return out
 
 
-def _continue_path(
-    today_z: FloatArray, rho: FloatArray, sd: FloatArray, days_after: int, rng: np.random.Generator
-) -> FloatArray:
-    """The AR(1) from today's level on, ``(row, days_after + 1)``; column 0 is today.
+def _loading_from(
+    posterior: CompactPosterior, today: dt.date, index: IntArray
+) -> Callable[[int], FloatArray]:
+    """``days_after -> (row, days_after + 1)`` weekday loadings of today and the days after it,
+    for the picked draws ``index``."""
+    first = (today - posterior.calendar.first_day).days
 
-    Innovations are drawn day after day, so a longer request extends the same path.
+    def rows(days_after: int) -> FloatArray:
+        days = first + np.arange(days_after + 1)
+        return np.ascontiguousarray(weekday_loading(posterior, days)[:, index].T)
+
+    return rows
+
+
+def _continue_path(
+    today_z: FloatArray,
+    rho: FloatArray,
+    sd: FloatArray,
+    days_after: int,
+    rng: np.random.Generator,
+    *,
+    loading: FloatArray,
+) -> FloatArray:
+    """The daily deviation from today's on, ``(row, days_after + 1)``; column 0 is today.
+
+    The AR(1) runs on the state behind the deviations (a day's deviation is its weekday's
+    ``loading`` times the state). Innovations are drawn day after day, so a longer request
+    extends the same path.
     """
     path = np.empty((today_z.size, days_after + 1))
     path[:, 0] = today_z
+    state = today_z / loading[:, 0]
     shocks = rng.standard_normal((days_after, today_z.size))
     for k in range(1, days_after + 1):
-        path[:, k] = rho * path[:, k - 1] + sd * shocks[k - 1]
+        state = rho * state + sd * shocks[k - 1]
+        path[:, k] = state * loading[:, k]
     return path

@@ -23,13 +23,13 @@ from models.ratemodel.binning import OpeningHours, bin_grid
 from models.ratemodel.design import Calendar
 from models.ratemodel.spec import ModelSpec
 
-__all__ = ["BinTable", "CompactPosterior"]
+__all__ = ["BinTable", "CompactPosterior", "weekday_loading"]
 
 _ARRAYS = ("week_log_rate", "trend", "holiday_effect", "latent", "latent_rho", "latent_sd")
 #: Future days of latent path simulated once per loaded version (queries beyond extend it).
 _CACHED_FUTURE_DAYS = 401
 #: Arrays only some models have; a store written before they existed simply lacks them.
-_OPTIONAL_ARRAYS = ("dispersion", "annual", "within_day", "within_day_sd")
+_OPTIONAL_ARRAYS = ("dispersion", "annual", "within_day", "within_day_sd", "latent_loading")
 # Keeps the future within-day weights apart from the other seeded streams.
 _WITHIN_STREAM = 0x7368617065
 
@@ -61,6 +61,12 @@ class CompactPosterior:
         ``(draw, day, within_term)`` within-day shape weights of the history days and
         ``(draw, within_term)`` their sds, or None without the term. Future days draw their
         weights from Normal(0, sd) with a generator seeded by :attr:`seed` and the day index.
+    latent_loading
+        ``(draw, day_kind)`` loading of each kind of day (the weekdays, then holidays:
+        ``models.ratemodel.design.DAY_KINDS``) on the latent AR(1) state
+        (``spec.latent_by_weekday``), or None: every day 1. ``latent`` already holds the
+        loaded deviation of each history day; future days are the loading of their weekday times
+        the AR(1) state carried forward.
     """
 
     week_log_rate: np.ndarray
@@ -77,6 +83,7 @@ class CompactPosterior:
     annual: np.ndarray | None = None
     within_day: np.ndarray | None = None
     within_day_sd: np.ndarray | None = None
+    latent_loading: np.ndarray | None = None
 
     @property
     def n_draws(self) -> int:
@@ -262,6 +269,7 @@ class CompactPosterior:
             "annual": ((d, 2 * self.spec.annual_harmonics), self.spec.annual_harmonics),
             "within_day": ((d, self.n_days, self.spec.within_day), self.spec.within_day),
             "within_day_sd": ((d, self.spec.within_day), self.spec.within_day),
+            "latent_loading": ((d, 8), self.spec.latent_by_weekday),
         }
         for name, (shape, wanted) in terms.items():
             value = getattr(self, name)
@@ -396,8 +404,18 @@ def _extend_latent(posterior: CompactPosterior, days: int) -> np.ndarray:
     rho = posterior.as_float64["latent_rho"]
     sd = posterior.as_float64["latent_sd"]
     future = np.empty((extra, posterior.n_draws))
-    state = known[-1]
+    loading = weekday_loading(posterior, np.arange(posterior.n_days - 1, days))
+    state = known[-1] / loading[0]  # the AR(1) state behind the last history day's deviation
     for k in range(extra):
         state = rho * state + sd * shocks[k]
-        future[k] = state
+        future[k] = state * loading[k + 1]
     return np.concatenate([known, future], axis=0)
+
+
+def weekday_loading(posterior: CompactPosterior, days: np.ndarray) -> np.ndarray:
+    """``(len(days), draw)`` loading of each day index's kind (weekday or holiday) on the latent
+    state (ones without ``spec.latent_by_weekday``)."""
+    if posterior.latent_loading is None:
+        return np.ones((len(days), posterior.n_draws))
+    kinds = posterior.calendar.day_kinds(np.asarray(days))
+    return np.asarray(posterior.latent_loading, dtype=np.float64).T[kinds]

@@ -16,11 +16,23 @@ import pandas as pd
 from models.exceptions import InputError
 from models.ratemodel.bases import year_phase
 from models.ratemodel.binning import DAY_NAMES, BinnedSeries, local_features
+from models.ratemodel.screening import find_unusual_days, leave_out_days
 from models.ratemodel.spec import HolidayCalendar, ModelSpec
 
-__all__ = ["BinFeatures", "Calendar", "JointData", "ModelData", "make_model_data", "slot_labels"]
+__all__ = [
+    "DAY_KINDS",
+    "BinFeatures",
+    "Calendar",
+    "JointData",
+    "ModelData",
+    "make_model_data",
+    "slot_labels",
+]
 
 DAYS_PER_YEAR = 365.25
+#: Kinds of day for the weekday loadings of the daily deviation: the seven weekdays, and the
+#: holidays of the calendar whatever their weekday (``Calendar.day_kinds``).
+DAY_KINDS: tuple[str, ...] = (*DAY_NAMES, "holiday")
 
 
 def slot_labels(bin_minutes: int) -> list[str]:
@@ -85,6 +97,17 @@ class Calendar:
             holiday = np.isin(date, marked).astype(float)
         return BinFeatures(dow, slot, day, minute, years, holiday, date, year_phase(date))
 
+    def day_kinds(self, days: np.ndarray) -> np.ndarray:
+        """Index into :data:`DAY_KINDS` of each day index ``days`` (0 = :attr:`first_day`):
+        its weekday, or 7 for a holiday of the calendar."""
+        days = np.asarray(days, dtype=np.int64)
+        kinds = (self.first_day.weekday() + days) % 7
+        if self.holidays is not None and len(days):
+            dates = np.datetime64(self.first_day, "D") + days
+            flags = self.holidays.is_holiday([d.astype(dt.date) for d in dates])
+            kinds = np.where(np.asarray(flags, dtype=bool), 7, kinds)
+        return kinds
+
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready form (the holiday calendar lives in the spec)."""
         return {
@@ -108,7 +131,11 @@ class Calendar:
 
 @dataclass(frozen=True)
 class ModelData:
-    """Everything the model builder needs, as plain arrays with named coordinates."""
+    """Everything the model builder needs, as plain arrays with named coordinates.
+
+    ``left_out_days`` are the history's unusual days that ``spec.unusual_days == "leave-out"``
+    took out (their bins are missing, not in ``count``).
+    """
 
     calendar: Calendar
     count: np.ndarray
@@ -116,6 +143,7 @@ class ModelData:
     features: BinFeatures
     n_days: int
     coords: dict[str, list[str]]
+    left_out_days: tuple[dt.date, ...] = ()
 
     @property
     def mean_rate(self) -> float:
@@ -142,6 +170,10 @@ def make_model_data(binned: BinnedSeries, spec: ModelSpec) -> ModelData:
         )
     if binned.exposure.sum() <= 0:
         raise InputError("no observed bins: every bin is closed or missing")
+    left_out: tuple[dt.date, ...] = ()
+    if spec.unusual_days == "leave-out":
+        left_out = find_unusual_days(binned, holidays=spec.holidays)
+        binned = leave_out_days(binned, left_out)
     n_days = (binned.end_day - binned.first_day).days
     origin = binned.first_day + dt.timedelta(days=n_days // 2)
     calendar = Calendar(
@@ -157,6 +189,8 @@ def make_model_data(binned: BinnedSeries, spec: ModelSpec) -> ModelData:
         "slot": slot_labels(binned.bin_minutes),
         "day": [(binned.first_day + dt.timedelta(days=k)).isoformat() for k in range(n_days)],
     }
+    if spec.latent_by_weekday:
+        coords["day_kind"] = list(DAY_KINDS)
     if spec.annual_harmonics:
         coords["annual_term"] = [
             f"{kind}{k}" for k in range(1, spec.annual_harmonics + 1) for kind in ("sin", "cos")
@@ -170,6 +204,7 @@ def make_model_data(binned: BinnedSeries, spec: ModelSpec) -> ModelData:
         features=features,
         n_days=n_days,
         coords=coords,
+        left_out_days=left_out,
     )
 
 

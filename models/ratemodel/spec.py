@@ -30,6 +30,7 @@ __all__ = [
     "MAX_ANNUAL_HARMONICS",
     "MAX_WITHIN_DAY",
     "OBSERVATIONS",
+    "UNUSUAL_DAYS",
     "HolidayCalendar",
     "ModelSpec",
     "Priors",
@@ -45,6 +46,9 @@ BIN_MINUTES: tuple[int, ...] = (15, 30, 60, 1440)
 MAX_ANNUAL_HARMONICS = 12
 #: Most within-day shape terms (and never more than half the slots of a day).
 MAX_WITHIN_DAY = 8
+#: What a fit does with the history's unusual days (:mod:`models.ratemodel.screening`): ``keep``
+#: fits them like any other day, ``leave-out`` treats them as missing.
+UNUSUAL_DAYS: tuple[str, ...] = ("keep", "leave-out")
 
 
 @dataclass(frozen=True)
@@ -176,6 +180,14 @@ class ModelSpec:
     that extra spread, and an intraday update learns today's shape from the morning
     (:mod:`models.prediction.intraday`).
 
+    ``unusual_days="leave-out"`` fits without the days whose level stands far out from the same
+    weekdays around them and that no listed holiday explains (:mod:`models.ratemodel.screening`);
+    they become missing days, so the daily latent's spread is learned from ordinary days.
+    ``latent_by_weekday`` gives each weekday, and the calendar's holidays as one more kind of
+    day, its own loading on the daily latent deviation (``exp(l_kind) * z[day]``, the log
+    loadings summing to zero): weekdays whose level moves little from day to day get narrow
+    intervals even when other weekdays, or holidays, move a lot.
+
     Examples
     --------
     >>> spec = ModelSpec(bin_minutes=30, trend=False)
@@ -199,6 +211,8 @@ class ModelSpec:
     dispersion_by_slot: bool = True
     annual_harmonics: int = 0
     within_day: int = 0
+    unusual_days: str = "keep"
+    latent_by_weekday: bool = False
 
     def __post_init__(self) -> None:
         if self.bin_minutes not in BIN_MINUTES:
@@ -208,6 +222,16 @@ class ModelSpec:
         if self.observation not in OBSERVATIONS:
             raise InputError(
                 f"observation {self.observation!r} is not one of {', '.join(OBSERVATIONS)}"
+            )
+        if self.latent_by_weekday and not (self.latent_daily and self.day_of_week):
+            raise InputError(
+                "latent_by_weekday needs the daily latent deviation and the day-of-week effect on"
+            )
+        if self.latent_by_weekday and self.centred_latent:
+            raise InputError("latent_by_weekday is built on the non-centred latent path only")
+        if self.unusual_days not in UNUSUAL_DAYS:
+            raise InputError(
+                f"unusual_days {self.unusual_days!r} is not one of {', '.join(UNUSUAL_DAYS)}"
             )
         if self.interaction and not (self.day_of_week and self.time_of_day):
             raise InputError("the day-of-week x time-of-day interaction needs both main effects on")
@@ -258,6 +282,12 @@ class ModelSpec:
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready form (dates as ISO strings)."""
         out = asdict(self)
+        # Fields added later are left out at their defaults, so specs written before they
+        # existed read (and identify backtest results) the same.
+        if self.unusual_days == "keep":
+            del out["unusual_days"]
+        if not self.latent_by_weekday:
+            del out["latent_by_weekday"]
         if self.holidays is not None:
             out["holidays"]["extra"] = [d.isoformat() for d in self.holidays.extra]
         gamma = self.priors.baseline_gamma

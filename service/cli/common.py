@@ -20,6 +20,12 @@ from zoneinfo import ZoneInfo
 
 from models.exceptions import DegradedVersion, InputError, StoreError
 from models.fitting.options import FitOptions
+from service.defaults import (
+    DEFAULT_LATENT_BY_WEEKDAY,
+    DEFAULT_OBSERVATION,
+    DEFAULT_UNUSUAL_DAYS,
+    resolve_day_choices,
+)
 from service.history import (
     holiday_calendar,
     named_file_errors,
@@ -55,11 +61,6 @@ OPEN_HELP = (
     "every hour open (default: always open)"
 )
 
-#: Count law of ``ratecast fit`` and ``ratecast backtest`` unless told otherwise: measured on real
-#: hourly series, Poisson intervals covered 0.28-0.48 at the 80% level and negative binomial ones
-#: 0.81 (docs/evidence.md, docs/calibration.md). (The library's ModelSpec stays Poisson.)
-DEFAULT_OBSERVATION = "negbin"
-
 
 def add_model_options(p: argparse.ArgumentParser) -> None:
     """The model-term options shared by ``fit`` and ``backtest``."""
@@ -88,12 +89,38 @@ def add_model_options(p: argparse.ArgumentParser) -> None:
         help="let each day's shape vary: this many smooth within-day terms (0 = off; 3 is a good "
         "start for hourly data); intraday updates then learn today's shape from the morning",
     )
+    p.add_argument(
+        "--unusual-days",
+        choices=("auto", "leave-out", "keep"),
+        default=DEFAULT_UNUSUAL_DAYS,
+        help="days whose level stands far out from the same weekdays around them and that no "
+        "listed holiday explains (outages, storms, events): leave-out (fitted as missing days, "
+        "listed in the manifest), keep, or auto (default: leave-out for daily bins, keep for "
+        "finer bins, as measured in docs/evidence.md)",
+    )
+    p.add_argument(
+        "--latent-by-weekday",
+        choices=("auto", "on", "off"),
+        default=DEFAULT_LATENT_BY_WEEKDAY,
+        help="give each weekday, and holidays, its own loading on the daily latent deviation so "
+        "steady weekdays get narrow intervals when weekends or holidays swing: on, off, or auto "
+        "(default: on for daily bins, off for finer bins)",
+    )
 
 
-def model_spec(args: argparse.Namespace, *, bin_minutes: int, holidays: Any) -> Any:
+def model_spec(
+    args: argparse.Namespace, *, bin_minutes: int, holidays: Any, joint: bool = False
+) -> Any:
     """The :class:`~models.ratemodel.spec.ModelSpec` the options of :func:`add_model_options` describe."""
     from models.ratemodel.spec import ModelSpec
 
+    unusual_days, by_weekday = resolve_day_choices(
+        args.unusual_days,
+        args.latent_by_weekday,
+        bin_minutes=bin_minutes,
+        latent=not args.no_latent,
+        joint=joint,
+    )
     return ModelSpec(
         bin_minutes=bin_minutes,
         trend=not args.no_trend,
@@ -102,6 +129,8 @@ def model_spec(args: argparse.Namespace, *, bin_minutes: int, holidays: Any) -> 
         observation=args.observation,
         annual_harmonics=args.annual,
         within_day=args.within_day,
+        unusual_days=unusual_days,
+        latent_by_weekday=by_weekday,
     )
 
 

@@ -118,7 +118,21 @@ def _run_fit(args: argparse.Namespace) -> int:
     )
     for problem in diag.problems:
         print(f"  - {problem}")
+    print_left_out(outcome.fit.data.left_out_days)
     return 0
+
+
+def print_left_out(days: tuple[Any, ...]) -> None:
+    """Say which unusual days of history the fit left out (``--unusual-days keep`` keeps them)."""
+    if not days:
+        return
+    shown = ", ".join(d.isoformat() for d in days[:12])
+    more = f" and {len(days) - 12} more" if len(days) > 12 else ""
+    print(
+        f"left out {len(days)} unusual day(s) of history (their level stands far out from the "
+        f"same weekdays around them; listed in the version's manifest): {shown}{more}. "
+        "--unusual-days keep fits them"
+    )
 
 
 # ----------------------------------------------------------------------------- fit-group
@@ -180,7 +194,7 @@ def _run_fit_group(args: argparse.Namespace) -> int:
             )
     widths = {h.bin_minutes for h in histories.values()}
     calendar = holiday_calendar(args.holidays, args.special_days)
-    spec = model_spec(args, bin_minutes=min(widths), holidays=calendar)
+    spec = model_spec(args, bin_minutes=min(widths), holidays=calendar, joint=True)
     data = make_joint_data(histories, spec)
     print(
         f"fitting {', '.join(histories)} jointly ({sum(h.total for h in histories.values())} "

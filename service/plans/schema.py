@@ -18,6 +18,8 @@ is fitted, and every bad entry is reported with its name and field. Example::
     latent = true
     annual = 0
     within_day = 0
+    unusual_days = "auto"                  # "leave-out", "keep"; auto: leave-out for 1d bins
+    latent_by_weekday = "auto"             # "on", "off"; auto: on for 1d bins (single series)
 
     [defaults.sampling]                    # as the sampling options of ratecast fit
     draws = 1000
@@ -56,13 +58,22 @@ from typing import Any
 from models.exceptions import InputError, RatecastError
 from models.fitting.options import FitOptions
 from models.ratemodel.binning import OpeningHours, check_zone, parse_bin_width
-from models.ratemodel.spec import MAX_ANNUAL_HARMONICS, MAX_WITHIN_DAY, OBSERVATIONS
+from models.ratemodel.spec import (
+    MAX_ANNUAL_HARMONICS,
+    MAX_WITHIN_DAY,
+    OBSERVATIONS,
+    UNUSUAL_DAYS,
+)
 from models.store import check_series_name
+from service.defaults import (
+    AUTO,
+    DEFAULT_LATENT_BY_WEEKDAY,
+    DEFAULT_OBSERVATION,
+    DEFAULT_UNUSUAL_DAYS,
+)
 
 __all__ = ["Member", "Plan", "PlanEntry", "PlanError", "load_plan", "parse_plan"]
 
-#: The observation law entries get unless they say otherwise (the same as ``ratecast fit``).
-DEFAULT_OBSERVATION = "negbin"
 
 _PLACE_KEYS = {"zone", "bin", "opening", "holidays", "special_days", "model", "sampling", "until"}
 _MODEL_KEYS = {
@@ -71,6 +82,8 @@ _MODEL_KEYS = {
     "latent": bool,
     "annual": int,
     "within_day": int,
+    "unusual_days": str,
+    "latent_by_weekday": str,
 }
 _SAMPLING_KEYS = {
     "draws": int,
@@ -276,7 +289,12 @@ def _entry(
         holidays=merged.get("holidays"),
         special_days=tuple(merged.get("special_days", ())),
         until=merged.get("until"),
-        model={"observation": DEFAULT_OBSERVATION, **model},
+        model={
+            "observation": DEFAULT_OBSERVATION,
+            "unusual_days": DEFAULT_UNUSUAL_DAYS,
+            "latent_by_weekday": DEFAULT_LATENT_BY_WEEKDAY,
+            **model,
+        },
         sampling=sampling,
     )
     return entry, []
@@ -391,6 +409,20 @@ def _check_model(model: dict[str, Any], label: str, *, joint: bool) -> list[str]
     if model.get("observation", DEFAULT_OBSERVATION) not in OBSERVATIONS:
         problems.append(
             f"{label}: model: observation {model['observation']!r} is not one of {', '.join(OBSERVATIONS)}"
+        )
+    if model.get("unusual_days", DEFAULT_UNUSUAL_DAYS) not in (AUTO, *UNUSUAL_DAYS):
+        problems.append(
+            f"{label}: model: unusual_days {model['unusual_days']!r} is not one of "
+            f"{', '.join((AUTO, *UNUSUAL_DAYS))}"
+        )
+    if model.get("latent_by_weekday", DEFAULT_LATENT_BY_WEEKDAY) not in (AUTO, "on", "off"):
+        problems.append(
+            f"{label}: model: latent_by_weekday {model['latent_by_weekday']!r} is not one of "
+            "auto, on, off"
+        )
+    if joint and model.get("latent_by_weekday") == "on":
+        problems.append(
+            f"{label}: model: latent_by_weekday 'on' is not available for groups; use auto or off"
         )
     if not 0 <= model.get("annual", 0) <= MAX_ANNUAL_HARMONICS:
         problems.append(

@@ -125,17 +125,32 @@ def _history(entry: PlanEntry, member: Member, opening: Any) -> Any:
 
 def _spec(entry: PlanEntry, bin_minutes: int) -> Any:
     from models.ratemodel.spec import ModelSpec
+    from service.defaults import (
+        DEFAULT_LATENT_BY_WEEKDAY,
+        DEFAULT_UNUSUAL_DAYS,
+        resolve_day_choices,
+    )
     from service.history import holiday_calendar
 
     model = entry.model
+    latent = model.get("latent", True)
+    unusual_days, by_weekday = resolve_day_choices(
+        model.get("unusual_days", DEFAULT_UNUSUAL_DAYS),
+        model.get("latent_by_weekday", DEFAULT_LATENT_BY_WEEKDAY),
+        bin_minutes=bin_minutes,
+        latent=latent,
+        joint=entry.group,
+    )
     return ModelSpec(
         bin_minutes=bin_minutes,
         trend=model.get("trend", True),
-        latent_daily=model.get("latent", True),
+        latent_daily=latent,
         holidays=holiday_calendar(entry.holidays, ",".join(entry.special_days) or None),
         observation=model["observation"],
         annual_harmonics=model.get("annual", 0),
         within_day=model.get("within_day", 0),
+        unusual_days=unusual_days,
+        latent_by_weekday=by_weekday,
     )
 
 

@@ -15,6 +15,12 @@ from models.prediction.windows import forecast
 from models.ratemodel.binning import BinnedSeries, bin_grid, local_features
 from models.ratemodel.spec import ModelSpec
 from models.store import MemoryStore
+from service.defaults import (
+    DEFAULT_LATENT_BY_WEEKDAY,
+    DEFAULT_OBSERVATION,
+    DEFAULT_UNUSUAL_DAYS,
+    resolve_day_choices,
+)
 
 pytestmark = pytest.mark.slow
 TZ = "Europe/Dublin"
@@ -37,8 +43,18 @@ def published():  # type: ignore[no-untyped-def]
         grid, counts, np.ones(len(grid)), TZ, 60, FIRST, FIRST + dt.timedelta(days=DAYS)
     )
     # What `ratecast fit` builds by default (service/cli/common.py model_spec): negative
-    # binomial bins, trend, daily latent; default sampling settings, no force.
-    spec = ModelSpec(observation="negbin", trend=True, latent_daily=True)
+    # binomial bins, trend, daily latent (for hourly bins: unusual days kept, one latent scale);
+    # default sampling settings, no force.
+    unusual_days, by_weekday = resolve_day_choices(
+        DEFAULT_UNUSUAL_DAYS, DEFAULT_LATENT_BY_WEEKDAY, bin_minutes=60, latent=True, joint=False
+    )
+    spec = ModelSpec(
+        observation=DEFAULT_OBSERVATION,
+        trend=True,
+        latent_daily=True,
+        unusual_days=unusual_days,
+        latent_by_weekday=by_weekday,
+    )
     store = MemoryStore()
     outcome = fit_and_publish(
         binned, spec, store=store, series="small", options=FitOptions(progressbar=False)
@@ -53,6 +69,8 @@ def test_the_default_fit_passes_the_gate_first_time(published) -> None:
     assert outcome.fit.diagnostics.divergences == 0
     manifest = store.load("small").manifest
     assert manifest["fit"]["degraded"] is False and not is_degraded(manifest)
+    # Hourly bins keep every day by default; the manifest says none was left out.
+    assert manifest["data"]["unusual_days_left_out"] == []
 
 
 def test_its_forecast_brackets_the_known_rate(published) -> None:

@@ -8,7 +8,8 @@ from pathlib import Path
 
 import pytest
 
-from service.plans.schema import DEFAULT_OBSERVATION, PlanError, load_plan, parse_plan
+from service.defaults import DEFAULT_LATENT_BY_WEEKDAY, DEFAULT_OBSERVATION, DEFAULT_UNUSUAL_DAYS
+from service.plans.schema import PlanError, load_plan, parse_plan
 
 
 @pytest.fixture
@@ -55,7 +56,16 @@ retry = false
         a, b = plan.entries
         assert (a.zone, b.zone) == ("America/Chicago", "Europe/Dublin")
         assert a.opening == b.opening == "Mon-Fri 07:00-19:00"
-        assert a.model == b.model == {"observation": DEFAULT_OBSERVATION, "trend": False}
+        assert (
+            a.model
+            == b.model
+            == {
+                "observation": DEFAULT_OBSERVATION,
+                "unusual_days": DEFAULT_UNUSUAL_DAYS,
+                "latent_by_weekday": DEFAULT_LATENT_BY_WEEKDAY,
+                "trend": False,
+            }
+        )
         assert a.sampling == {"draws": 300}
         assert b.sampling == {"draws": 300, "chains": 2, "retry": False}
         assert b.fit_options().chains == 2 and b.fit_options().draws == 300
