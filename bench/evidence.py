@@ -274,6 +274,7 @@ def run(
     fits = {r["fitted_at"]: r["diagnostics"] for r in records}
     metrics["fit_minutes"] = sum(d.get("fit_seconds", 0.0) for d in fits.values()) / 60
     metrics["config"] = config.to_dict()
+    metrics["model"] = describe(dataset.spec)  # as fitted, since a series' model may change later
     return metrics
 
 
@@ -446,18 +447,24 @@ def evidence_markdown(results: dict[str, dict[str, Any]], commentary: str) -> st
     ]
     for name, by_mode in results.items():
         dataset = DATASETS[name]
-        lines += [
-            f"## {dataset.title}",
-            "",
-            f"Data: {dataset.source}. Model: {describe(dataset.spec)}.",
-            "",
-        ]
+        models = {mode: m.get("model", describe(dataset.spec)) for mode, m in by_mode.items()}
+        one_model = len(set(models.values())) == 1
+        lines += [f"## {dataset.title}", "", f"Data: {dataset.source}."]
+        if one_model:
+            lines[-1] += f" Model: {next(iter(models.values()))}."
+        if set(models.values()) != {describe(dataset.spec)}:
+            lines[-1] += (
+                f" The figures below were recorded with an earlier model than this script's "
+                f"({describe(dataset.spec)}); rerun `--only {name}` to bring them up to date."
+            )
+        lines.append("")
         for mode in MODES:
             m = by_mode.get(mode)
             if not m:
                 continue
             lines += [
-                f"**{mode}**: {m['origins']} origins, {m['fits']} fits ({m['gate_failures']} "
+                f"**{mode}**{'' if one_model else f' (model: {models[mode]})'}: "
+                f"{m['origins']} origins, {m['fits']} fits ({m['gate_failures']} "
                 f"failed the diagnostics gate and were scored anyway), {m['fit_minutes']:.0f} min "
                 f"of fitting; report and plots: [evidence/{name}/{mode}/report.md]"
                 f"(evidence/{name}/{mode}/report.md).",
