@@ -25,6 +25,7 @@ from service.defaults import (
     DEFAULT_OBSERVATION,
     DEFAULT_UNUSUAL_DAYS,
     resolve_day_choices,
+    resolve_observation,
 )
 from service.history import (
     holiday_calendar,
@@ -68,10 +69,12 @@ def add_model_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--no-latent", action="store_true", help="leave out the daily latent deviation")
     p.add_argument(
         "--observation",
-        choices=("poisson", "negbin"),
+        choices=("auto", "poisson", "negbin"),
         default=DEFAULT_OBSERVATION,
-        help="count law per bin: negbin (default: extra bin-level scatter, one dispersion per slot "
-        "of the day; measured calibrated on real hourly data, docs/calibration.md) or poisson",
+        help="count law per bin: negbin (extra bin-level scatter, one dispersion per slot of the "
+        "day; measured calibrated on real hourly data, docs/calibration.md), poisson, or auto "
+        "(default: negbin, but poisson for daily bins with the daily latent, which carries their "
+        "day-level scatter)",
     )
     p.add_argument(
         "--annual",
@@ -126,7 +129,9 @@ def model_spec(
         trend=not args.no_trend,
         latent_daily=not args.no_latent,
         holidays=holidays,
-        observation=args.observation,
+        observation=resolve_observation(
+            args.observation, bin_minutes=bin_minutes, latent=not args.no_latent
+        ),
         annual_harmonics=args.annual,
         within_day=args.within_day,
         unusual_days=unusual_days,

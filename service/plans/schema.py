@@ -406,9 +406,10 @@ def _typed(table: Any, allowed: dict[str, type], where: str, problems: list[str]
 
 def _check_model(model: dict[str, Any], label: str, *, joint: bool) -> list[str]:
     problems = []
-    if model.get("observation", DEFAULT_OBSERVATION) not in OBSERVATIONS:
+    if model.get("observation", DEFAULT_OBSERVATION) not in (AUTO, *OBSERVATIONS):
         problems.append(
-            f"{label}: model: observation {model['observation']!r} is not one of {', '.join(OBSERVATIONS)}"
+            f"{label}: model: observation {model['observation']!r} is not one of "
+            f"{', '.join((AUTO, *OBSERVATIONS))}"
         )
     if model.get("unusual_days", DEFAULT_UNUSUAL_DAYS) not in (AUTO, *UNUSUAL_DAYS):
         problems.append(

@@ -129,6 +129,7 @@ def _spec(entry: PlanEntry, bin_minutes: int) -> Any:
         DEFAULT_LATENT_BY_WEEKDAY,
         DEFAULT_UNUSUAL_DAYS,
         resolve_day_choices,
+        resolve_observation,
     )
     from service.history import holiday_calendar
 
@@ -146,7 +147,9 @@ def _spec(entry: PlanEntry, bin_minutes: int) -> Any:
         trend=model.get("trend", True),
         latent_daily=latent,
         holidays=holiday_calendar(entry.holidays, ",".join(entry.special_days) or None),
-        observation=model["observation"],
+        observation=resolve_observation(
+            model["observation"], bin_minutes=bin_minutes, latent=latent
+        ),
         annual_harmonics=model.get("annual", 0),
         within_day=model.get("within_day", 0),
         unusual_days=unusual_days,

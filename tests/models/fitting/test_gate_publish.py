@@ -20,6 +20,7 @@ from service.defaults import (
     DEFAULT_OBSERVATION,
     DEFAULT_UNUSUAL_DAYS,
     resolve_day_choices,
+    resolve_observation,
 )
 
 pytestmark = pytest.mark.slow
@@ -49,7 +50,7 @@ def published():  # type: ignore[no-untyped-def]
         DEFAULT_UNUSUAL_DAYS, DEFAULT_LATENT_BY_WEEKDAY, bin_minutes=60, latent=True, joint=False
     )
     spec = ModelSpec(
-        observation=DEFAULT_OBSERVATION,
+        observation=resolve_observation(DEFAULT_OBSERVATION, bin_minutes=60, latent=True),
         trend=True,
         latent_daily=True,
         unusual_days=unusual_days,

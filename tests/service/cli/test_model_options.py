@@ -26,6 +26,16 @@ def test_daily_series_leave_unusual_days_out_and_load_the_latent_by_default() ->
     assert hourly.observation == "negbin"
 
 
+def test_daily_bins_with_the_latent_get_poisson_days_by_default() -> None:
+    # The negative binomial day and the daily latent are both day-level noise and sampled badly
+    # together (docs/calibration.md, "Daily series"): auto gives daily bins Poisson days.
+    assert spec_of(bin_minutes=1440).observation == "poisson"
+    assert spec_of("--no-latent", bin_minutes=1440).observation == "negbin"
+    assert spec_of(bin_minutes=30).observation == "negbin"
+    assert spec_of("--observation", "negbin", bin_minutes=1440).observation == "negbin"
+    assert spec_of("--observation", "poisson").observation == "poisson"
+
+
 def test_the_choices_can_be_forced_either_way() -> None:
     kept = spec_of("--unusual-days", "keep", "--latent-by-weekday", "off", bin_minutes=1440)
     assert (kept.unusual_days, kept.latent_by_weekday) == ("keep", False)
