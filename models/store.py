@@ -224,6 +224,11 @@ class FileStore:
     def __init__(self, root: str | os.PathLike[str]) -> None:
         self.root = Path(root)
 
+    @property
+    def location(self) -> str:
+        """The store's folder, for messages."""
+        return str(self.root)
+
     # -------------------------------------------------------------- writing
     def publish(
         self,
