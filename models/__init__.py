@@ -10,7 +10,9 @@ The packages, in the order data flows through them:
     The only PyMC and ArviZ users: graph building, NUTS sampling, the diagnostics gate, joint
     fits across series, and fit-and-publish. Settings live in :mod:`~models.fitting.options`.
 ``models.store``
-    Versioned, atomic storage of compact posteriors (a file store and an in-memory twin).
+    Versioned, atomic storage of compact posteriors (a file store and an in-memory twin);
+    :mod:`~models.urlstore` keeps the same versions on S3, and :func:`models.storage.open_store`
+    opens either from a location string.
 ``models.prediction``
     The query path (numpy, scipy, pandas only): the compact posterior, window integrals, exact
     Poisson-mixture summaries, the intraday update and arrival simulation.

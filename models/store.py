@@ -29,7 +29,6 @@ from __future__ import annotations
 import contextlib
 import datetime as dt
 import fcntl
-import hashlib
 import json
 import os
 import re
@@ -44,23 +43,22 @@ from models.exceptions import CorruptArtefact, InputError, SeriesNotFound, Store
 from models.files import atomic_write, fsync_path, sha256_of, write_synced
 from models.fitting.verdict import fit_problems, is_degraded
 from models.prediction.posterior import CompactPosterior
+from models.sealing import FORMAT, SEAL, UNSEALED_FORMAT, decode_version, seal, verify_seal
 
 __all__ = [
     "FORMAT",
+    "SEAL",
+    "UNSEALED_FORMAT",
     "FileStore",
     "MemoryStore",
     "PosteriorStore",
     "StoredVersion",
+    "build_manifest",
     "check_series_name",
     "package_versions",
+    "unknown_series",
 ]
 
-#: Format tag written into every manifest.
-FORMAT = "ratecast-posterior/2"
-#: Manifests of this format have no seal; they still load (draws checksum only).
-UNSEALED_FORMAT = "ratecast-posterior/1"
-SEAL = "SEAL"
-_SEAL_FORMAT = "ratecast-seal/1"
 _SERIES = re.compile(r"^[a-z0-9][a-z0-9._-]{0,63}$")
 _VERSION = re.compile(r"^v(\d{4,})$")
 
@@ -148,9 +146,11 @@ class PosteriorStore(Protocol):
         ...
 
 
-def _build_manifest(
+def build_manifest(
     series: str, version: str, posterior: CompactPosterior, extra: dict[str, Any]
 ) -> dict[str, Any]:
+    """The manifest of a new version: format, names, time, packages, the draws' description
+    and the publisher's ``extra`` (the store adds ``files`` and, where due, ``skipped_versions``)."""
     return {
         "format": FORMAT,
         "series": series,
@@ -180,7 +180,7 @@ class MemoryStore:
         existing = self._versions.setdefault(series, [])
         version = f"v{len(existing) + 1:04d}"
         stored = StoredVersion(
-            series, version, _build_manifest(series, version, posterior, manifest), posterior
+            series, version, build_manifest(series, version, posterior, manifest), posterior
         )
         existing.append(stored)
         return stored
@@ -208,11 +208,12 @@ class MemoryStore:
     def _require(self, series: str) -> list[StoredVersion]:
         check_series_name(series)
         if series not in self._versions:
-            raise SeriesNotFound(_unknown_series(series, self.series()))
+            raise SeriesNotFound(unknown_series(series, self.series()))
         return self._versions[series]
 
 
-def _unknown_series(series: str, known: list[str]) -> str:
+def unknown_series(series: str, known: list[str]) -> str:
+    """The message for a series the store does not hold, listing those it does."""
     listing = ", ".join(known) if known else "none published yet"
     return f"no published series {series!r}; published series: {listing}"
 
@@ -222,6 +223,11 @@ class FileStore:
 
     def __init__(self, root: str | os.PathLike[str]) -> None:
         self.root = Path(root)
+
+    @property
+    def location(self) -> str:
+        """The store's folder, for messages."""
+        return str(self.root)
 
     # -------------------------------------------------------------- writing
     def publish(
@@ -253,13 +259,13 @@ class FileStore:
                     for path in sorted(staging.iterdir())
                 }
                 version = self._next_version(series)
-                body = _build_manifest(series, version, posterior, manifest)
+                body = build_manifest(series, version, posterior, manifest)
                 body["files"] = checksums
                 skipped = self._never_current(series)
                 if skipped:
                     body["skipped_versions"] = skipped
                 write_synced(staging / "manifest.json", json.dumps(body, indent=2).encode())
-                write_synced(staging / SEAL, _seal(staging))
+                write_synced(staging / SEAL, seal(_file_digests(staging)))
                 try:
                     self._commit(staging, versions_dir / version)
                 except OSError as exc:
@@ -371,38 +377,20 @@ class FileStore:
                 f"series {series!r} has no version {version!r}; versions: "
                 f"{', '.join(self.versions(series)) or 'none'}"
             )
+        label = f"{series} {version}"
         sealed = (folder / SEAL).exists()
         if sealed:
-            _verify_seal(folder, f"{series} {version}")
-        try:
-            manifest = json.loads((folder / "manifest.json").read_text())
-        except (OSError, ValueError) as exc:
-            raise CorruptArtefact(f"{series} {version}: manifest.json unreadable: {exc}") from exc
-        expected = FORMAT if sealed else UNSEALED_FORMAT
-        if manifest.get("format") != expected:
-            raise CorruptArtefact(
-                f"{series} {version}: format {manifest.get('format')!r}, expected {expected!r}"
-                + ("" if sealed else " (a version of the current format must have a SEAL)")
-            )
-        entry = manifest.get("files", {}).get("draws.npz")
-        if entry is None:
-            raise CorruptArtefact(f"{series} {version}: manifest lists no draws.npz")
-        try:
-            payload = (folder / "draws.npz").read_bytes()
-        except OSError as exc:
-            raise CorruptArtefact(f"{series} {version}: draws.npz unreadable: {exc}") from exc
-        digest = hashlib.sha256(payload).hexdigest()
-        if digest != entry["sha256"]:
-            raise CorruptArtefact(
-                f"{series} {version}: draws.npz checksum {digest[:12]}... does not match the "
-                f"manifest's {entry['sha256'][:12]}...; the file was changed or damaged"
-            )
-        try:
-            posterior = CompactPosterior.from_bytes(payload, manifest)
-        except (KeyError, TypeError, ValueError) as exc:
-            raise CorruptArtefact(
-                f"{series} {version}: manifest does not describe the draws: {exc}"
-            ) from exc
+            try:
+                payload, files = (folder / SEAL).read_bytes(), _file_digests(folder)
+            except OSError as exc:
+                raise CorruptArtefact(
+                    f"{label}: a file of the version cannot be read: {exc}"
+                ) from exc
+            verify_seal(payload, files, label)
+        manifest_bytes = _read(folder / "manifest.json", label)
+        manifest, posterior = decode_version(
+            label, manifest_bytes, _read(folder / "draws.npz", label), sealed=sealed
+        )
         return StoredVersion(series, version, manifest, posterior, sealed=sealed)
 
     def posterior_path(self, series: str, version: str | None = None) -> Path:
@@ -413,10 +401,11 @@ class FileStore:
     def _require(self, series: str) -> None:
         check_series_name(series)
         if not (self.root / series / "CURRENT").exists():
-            raise SeriesNotFound(_unknown_series(series, self.series()))
+            raise SeriesNotFound(unknown_series(series, self.series()))
 
 
-def _seal_lines(folder: Path) -> dict[str, str]:
+def _file_digests(folder: Path) -> dict[str, str]:
+    """SHA-256 of every file of a version folder but its seal."""
     return {
         path.name: sha256_of(path)
         for path in sorted(folder.iterdir())
@@ -424,38 +413,8 @@ def _seal_lines(folder: Path) -> dict[str, str]:
     }
 
 
-def _digest(files: dict[str, str]) -> str:
-    text = "".join(f"{name} {sha}\n" for name, sha in sorted(files.items()))
-    return hashlib.sha256(text.encode()).hexdigest()
-
-
-def _seal(folder: Path) -> bytes:
-    """The seal of a staged version: every file's SHA-256 and one digest over them."""
-    files = _seal_lines(folder)
-    body = {"format": _SEAL_FORMAT, "files": files, "digest": _digest(files)}
-    return json.dumps(body, indent=2).encode()
-
-
-def _verify_seal(folder: Path, label: str) -> None:
+def _read(path: Path, label: str) -> bytes:
     try:
-        seal = json.loads((folder / SEAL).read_text())
-        listed = dict(seal["files"])
-        digest = str(seal["digest"])
-    except (OSError, ValueError, KeyError, TypeError) as exc:
-        raise CorruptArtefact(f"{label}: SEAL unreadable: {exc}") from exc
-    if _digest(listed) != digest:
-        raise CorruptArtefact(f"{label}: SEAL does not add up; it was changed or damaged")
-    try:
-        actual = _seal_lines(folder)
+        return path.read_bytes()
     except OSError as exc:
-        raise CorruptArtefact(f"{label}: a file of the version cannot be read: {exc}") from exc
-    for name in sorted(set(listed) | set(actual)):
-        if name not in actual:
-            raise CorruptArtefact(f"{label}: {name} is listed in the seal but missing")
-        if name not in listed:
-            raise CorruptArtefact(f"{label}: {name} is not part of the sealed version")
-        if actual[name] != listed[name]:
-            raise CorruptArtefact(
-                f"{label}: {name} checksum {actual[name][:12]}... does not match the seal's "
-                f"{listed[name][:12]}...; the file was changed or damaged"
-            )
+        raise CorruptArtefact(f"{label}: {path.name} unreadable: {exc}") from exc

@@ -6,10 +6,11 @@ it once; the API's routes get the settings their app was created with (``service
 
 from __future__ import annotations
 
+import os
 from functools import lru_cache
-from pathlib import Path
+from typing import Any
 
-from pydantic import Field, SecretStr
+from pydantic import Field, SecretStr, field_validator
 from pydantic_settings import BaseSettings, SettingsConfigDict
 
 __all__ = ["Settings", "get_settings"]
@@ -20,7 +21,13 @@ class Settings(BaseSettings):
 
     model_config = SettingsConfigDict(env_prefix="RATECAST_", env_file=".env", extra="ignore")
 
-    store: Path = Field(Path("store"), description="Folder of the posterior store.")
+    store: str = Field(
+        "store",
+        description=(
+            "Where the posterior store is: a folder (shared or mounted ones too), a file:// URL "
+            "or an s3://BUCKET/PREFIX URL (models.storage.open_store)."
+        ),
+    )
     max_windows: int = Field(10_000, ge=1, description="Most windows one request may ask for.")
     max_horizon_days: int = Field(400, ge=1, description="Latest window end, days after history.")
     max_body_bytes: int = Field(1_000_000, ge=1024, description="Largest request body accepted.")
@@ -55,6 +62,12 @@ class Settings(BaseSettings):
     watch_seconds: float = Field(
         30.0, ge=0.0, description="Poll the store for new versions this often (0: off)."
     )
+
+    @field_validator("store", mode="before")
+    @classmethod
+    def _store_as_text(cls, value: Any) -> Any:
+        """A folder given as a path object is kept as its text."""
+        return os.fspath(value) if isinstance(value, os.PathLike) else value
 
 
 @lru_cache

@@ -17,7 +17,8 @@ from fastapi import FastAPI
 from fastapi.middleware.cors import CORSMiddleware
 
 from models import __version__
-from models.store import FileStore, PosteriorStore
+from models.storage import open_store
+from models.store import PosteriorStore
 from service.api.errors import install_error_handlers
 from service.api.limits import BodyLimitMiddleware, QueryTokenMiddleware
 from service.api.redact import AccessLogRedactor
@@ -103,8 +104,8 @@ def create_app(settings: Settings | None = None, *, store: PosteriorStore | None
     settings
         Configuration; default: :func:`service.config.get_settings` (``RATECAST_*`` variables).
     store
-        Posterior store to serve; default: a :class:`~models.store.FileStore` at
-        ``settings.store``. Tests pass a :class:`~models.store.MemoryStore`.
+        Posterior store to serve; default: the store at ``settings.store`` (a folder or a URL,
+        :func:`models.storage.open_store`). Tests pass a :class:`~models.store.MemoryStore`.
     """
     settings = settings or get_settings()
     app = FastAPI(
@@ -115,7 +116,7 @@ def create_app(settings: Settings | None = None, *, store: PosteriorStore | None
         lifespan=_lifespan,
     )
     app.state.settings = settings
-    app.state.registry = Registry(store if store is not None else FileStore(settings.store))
+    app.state.registry = Registry(store if store is not None else open_store(settings.store))
     app.state.metrics = Metrics()
     app.state.work = WorkPool(
         threads=settings.work_threads,

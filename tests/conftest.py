@@ -5,6 +5,7 @@ from __future__ import annotations
 import datetime as dt
 import functools
 import os
+from collections.abc import Iterator
 from pathlib import Path
 
 import numpy as np
@@ -130,3 +131,52 @@ def auckland_hourly(first: str, end: str, *, sensor: str = "45 Queen Street") ->
     frame = _auckland_year(int(first[:4]), sensor)
     chosen = frame[(frame["start"] >= first) & (frame["start"] < end)]
     return chosen.reset_index(drop=True)
+
+
+def _free_loopback_port() -> int:
+    import socket
+
+    with socket.socket() as probe:
+        probe.bind(("127.0.0.1", 0))
+        return int(probe.getsockname()[1])
+
+
+@pytest.fixture(scope="session")
+def s3_endpoint() -> Iterator[str]:
+    """A real S3 API (moto's server) on a free loopback port, with a bucket ``ratecast-test``.
+
+    Credentials and the endpoint go into the ``AWS_*`` environment variables, so every process
+    started from the tests (Dask workers, CLI subprocesses) reaches the same server.
+    """
+    server_module = pytest.importorskip("moto.server")
+    pytest.importorskip("s3fs")
+    import logging
+
+    logging.getLogger("werkzeug").setLevel(logging.ERROR)  # one line per request otherwise
+    port = _free_loopback_port()
+    server = server_module.ThreadedMotoServer(ip_address="127.0.0.1", port=port, verbose=False)
+    server.start()
+    endpoint = f"http://127.0.0.1:{port}"
+    with pytest.MonkeyPatch.context() as env:
+        for name, value in {
+            "AWS_ACCESS_KEY_ID": "testing",
+            "AWS_SECRET_ACCESS_KEY": "testing",
+            "AWS_DEFAULT_REGION": "us-east-1",
+            "AWS_ENDPOINT_URL_S3": endpoint,
+        }.items():
+            env.setenv(name, value)
+        import s3fs
+
+        s3fs.S3FileSystem(skip_instance_cache=True).mkdir("ratecast-test")
+        try:
+            yield endpoint
+        finally:
+            server.stop()
+
+
+@pytest.fixture
+def s3_url(s3_endpoint: str) -> str:
+    """A fresh, empty store prefix in the moto bucket, one per test."""
+    import uuid
+
+    return f"s3://ratecast-test/{uuid.uuid4().hex[:12]}"

@@ -14,7 +14,9 @@ from urllib.parse import parse_qsl
 
 __all__ = ["CREDENTIAL_PARAMS", "AccessLogRedactor", "credential_in_query", "public_text"]
 
-_PATH = re.compile(r"(?:[A-Za-z]:\\|[/\\])?(?:[^\s'\"/\\]+[/\\])+[^\s'\"/\\]*")
+_PATH = re.compile(
+    r"(?:[A-Za-z][A-Za-z0-9+.-]*://|[A-Za-z]:\\|[/\\])?(?:[^\s'\"/\\]+[/\\])+[^\s'\"/\\]*"
+)
 _MAX_PUBLIC = 300
 
 #: Query parameters that look like a credential; such a request is refused, its value unlogged.
@@ -26,7 +28,10 @@ CREDENTIAL_PARAMS = frozenset(
 
 def _shorten(match: re.Match[str]) -> str:
     text = match.group(0)
-    absolute = text.startswith(("/", "\\")) or re.match(r"[A-Za-z]:\\", text) is not None
+    absolute = (
+        text.startswith(("/", "\\"))
+        or re.match(r"[A-Za-z]:\\|[A-Za-z][A-Za-z0-9+.-]*://", text) is not None
+    )
     if not absolute and len(re.findall(r"[/\\]", text)) < 2:
         return text  # "a/b": a ratio or a pair, not a path
     name = re.split(r"[/\\]", text.rstrip("/\\"))[-1]
@@ -34,13 +39,16 @@ def _shorten(match: re.Match[str]) -> str:
 
 
 def public_text(text: str) -> str:
-    """``text`` fit for a client: every file-system path replaced by its last name, cut short.
+    """``text`` fit for a client: every file-system path and store URL replaced by its last
+    name, cut short.
 
     Examples
     --------
     >>> public_text("desk-a v0003: draws.npz unreadable: [Errno 2] No such file: "
     ...             "'/srv/ratecast/store/desk-a/versions/v0003/draws.npz'")
     "desk-a v0003: draws.npz unreadable: [Errno 2] No such file: 'draws.npz'"
+    >>> public_text("store s3://bucket/ratecast: cannot list 'desk-a'")
+    "store ratecast: cannot list 'desk-a'"
     """
     short = _PATH.sub(_shorten, text)
     return short if len(short) <= _MAX_PUBLIC else short[:_MAX_PUBLIC] + "..."

@@ -14,7 +14,6 @@ import time
 import warnings
 from collections.abc import Iterator
 from contextlib import contextmanager
-from pathlib import Path
 from typing import Any, TextIO
 from zoneinfo import ZoneInfo
 
@@ -54,7 +53,9 @@ __all__ = [
 ]
 
 #: Help text of every ``--store`` option.
-STORE_HELP = "store folder (default $RATECAST_STORE, else ./store)"
+STORE_HELP = (
+    "store folder, file:// or s3://BUCKET/PREFIX URL (default $RATECAST_STORE, else ./store)"
+)
 #: Help text of every ``--open`` option: the syntax of opening hours, overnight and always-open.
 OPEN_HELP = (
     "opening hours, e.g. 'Mon-Fri 07:00-21:00; Sat 09:00-13:00'. A span closing before it opens "
@@ -140,21 +141,30 @@ def model_spec(
 
 
 def store_from_args(args: argparse.Namespace, *, create: bool = False) -> Any:
-    """The file store named by ``--store``, else ``$RATECAST_STORE``, else ``./store``.
+    """The store named by ``--store``, else ``$RATECAST_STORE``, else ``./store``: a folder, a
+    ``file://`` URL or an ``s3://`` URL (:func:`models.storage.open_store`).
 
     A folder that does not exist is refused naming it (and where the name came from), unless
-    ``create`` (a fit publishes into a new store).
+    ``create`` (a fit publishes into a new store). An object store has no folder to check; a
+    missing bucket is refused when the store is first read.
     """
+    from models.ratemodel.binning import shown_path
+    from models.storage import open_store
     from models.store import FileStore
     from service.config import get_settings
 
     if getattr(args, "store", None):
-        root, source = Path(args.store), "--store"
+        location, source = str(args.store), "--store"
     else:
-        root = get_settings().store
+        location = get_settings().store
         source = "$RATECAST_STORE" if os.environ.get("RATECAST_STORE") else "the default ./store"
-    from models.ratemodel.binning import shown_path
-
+    try:
+        store = open_store(location)
+    except (InputError, StoreError) as exc:
+        raise type(exc)(f"{exc} ({source})") from None
+    if not isinstance(store, FileStore):
+        return store
+    root = store.root
     try:
         exists, folder = root.exists(), root.is_dir()
     except OSError as exc:
@@ -168,7 +178,7 @@ def store_from_args(args: argparse.Namespace, *, create: bool = False) -> Any:
             f"store folder {shown_path(root)} ({source}) does not exist; give the folder a fit "
             "published to (--store or $RATECAST_STORE), or run ratecast fit first"
         )
-    return FileStore(root)
+    return store
 
 
 def number_list(text: str, *, option: str, kind: type = float) -> tuple[Any, ...]:

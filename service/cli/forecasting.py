@@ -119,7 +119,7 @@ def _run_series(args: argparse.Namespace) -> int:
         return 0
     names = store.series()
     if not names:
-        print(f"no series published in {store.root}")
+        print(f"no series published in {store.location}")
     damaged = 0
     for name in names:
         try:

@@ -44,14 +44,14 @@ def register(sub: Any) -> None:
     p.add_argument(
         "--store",
         default=None,
-        help="store folder every worker can reach (default: the plan's 'store', else "
-        "$RATECAST_STORE, else ./store)",
+        help="store every worker can reach: a shared folder, file:// or s3://BUCKET/PREFIX URL "
+        "(default: the plan's 'store', else $RATECAST_STORE, else ./store)",
     )
     p.add_argument(
         "--cache",
         default=None,
         help="folder for the workers' compile caches (default: .cache/ratecast-workers beside "
-        "the store)",
+        "a store folder, or in the current folder for a URL store)",
     )
     p.add_argument("--json", default=None, metavar="FILE", help="also write the results as JSON")
     p.add_argument(
@@ -62,6 +62,7 @@ def register(sub: Any) -> None:
 
 def _run(args: argparse.Namespace) -> int:
     from models.exceptions import InputError
+    from models.storage import local_folder, open_store
     from service.config import get_settings
     from service.plans import load_plan, run_plan
 
@@ -74,10 +75,13 @@ def _run(args: argparse.Namespace) -> int:
             print(f"{'group' if entry.group else 'series'} {entry.name}: {members}")
         print(f"plan {args.plan}: {len(plan.entries)} entries, {len(plan.series)} series, valid")
         return 0
-    store = Path(args.store or plan.store or get_settings().store).resolve()
-    cache = (
-        Path(args.cache).resolve() if args.cache else store.parent / ".cache" / "ratecast-workers"
-    )
+    location = args.store or plan.store or get_settings().store
+    open_store(location)  # a bad location is refused here, before any worker starts
+    folder = local_folder(location)
+    # Workers get a folder as an absolute path and a URL as it is; each opens the store itself.
+    store = str(folder.resolve()) if folder is not None else location
+    cache_base = folder.resolve().parent if folder is not None else Path.cwd()
+    cache = Path(args.cache).resolve() if args.cache else cache_base / ".cache" / "ratecast-workers"
     tty = sys.stderr.isatty()
 
     def progress(record: dict[str, Any], done: int, total: int) -> None:
@@ -92,7 +96,7 @@ def _run(args: argparse.Namespace) -> int:
     )
     report = run_plan(
         plan,
-        store_root=str(store),
+        store_root=store,
         cache_root=str(cache),
         scheduler=args.scheduler,
         workers=args.workers,

@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import argparse
 import os
-from pathlib import Path
 from typing import Any
 
 from models.exceptions import InputError
@@ -62,7 +61,9 @@ def register(sub: Any) -> None:
         help=f"worker processes: a number or 'auto' (one per CPU); default ${_WORKERS_ENV} or 1",
     )
     p.add_argument(
-        "--store", default=None, help="store folder (default $RATECAST_STORE or ./store)"
+        "--store",
+        default=None,
+        help="store folder, file:// or s3://BUCKET/PREFIX URL (default $RATECAST_STORE or ./store)",
     )
     p.add_argument(
         "--log-level",
@@ -112,14 +113,18 @@ def _bounded(option: str, low: int, high: int) -> Any:
 def _run_serve(args: argparse.Namespace) -> int:
     import uvicorn
 
+    from models.storage import local_folder, open_store
+
     if args.store:
-        store = Path(args.store)
-        if store.exists() and not store.is_dir():
+        folder = local_folder(args.store)
+        if folder is not None and folder.exists() and not folder.is_dir():
             raise InputError(f"--store {args.store!r} is a file; give the store folder")
-        os.environ["RATECAST_STORE"] = str(store.resolve())
+        # A folder travels to the workers as an absolute path, a URL as it is.
+        os.environ["RATECAST_STORE"] = str(folder.resolve()) if folder else args.store
     from service.config import get_settings
 
     get_settings.cache_clear()  # settings read from here on see the store chosen above
+    open_store(get_settings().store)  # a bad location is one line here, not a worker traceback
     uvicorn.run(
         "service.main:app",
         host=args.host,

@@ -69,7 +69,8 @@ def run_plan(
     plan
         A validated plan (:func:`~service.plans.schema.load_plan`).
     store_root
-        Store folder every worker can reach.
+        Store every worker can reach: a shared folder or a URL (``s3://bucket/prefix``), as
+        :func:`models.storage.open_store` takes it.
     cache_root
         Folder under which each worker keeps its own compile caches.
     scheduler

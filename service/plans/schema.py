@@ -3,7 +3,8 @@
 Entries inherit ``[defaults]`` and override any of it; the whole plan is checked before anything
 is fitted, and every bad entry is reported with its name and field. Example::
 
-    store = "/srv/ratecast/store"          # optional; default: RATECAST_STORE or ./store
+    store = "/srv/ratecast/store"          # optional; a folder or s3://bucket/prefix; default:
+                                           # RATECAST_STORE or ./store
 
     [defaults]
     zone = "America/Chicago"               # IANA time zone
@@ -197,7 +198,7 @@ def parse_plan(text: str, *, path: str | Path = "<plan>") -> Plan:
     ]
     store = raw.get("store")
     if store is not None and not isinstance(store, str):
-        problems.append(f"top level: store {store!r} must be a path string")
+        problems.append(f"top level: store {store!r} must be a folder path or URL string")
     defaults = raw.get("defaults", {})
     if not isinstance(defaults, dict):
         problems.append("defaults: must be a table")

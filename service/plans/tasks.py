@@ -28,14 +28,19 @@ __all__ = ["entry_key", "fit_entry"]
 
 def fit_entry(entry: PlanEntry, store_root: str, cache_root: str | None = None) -> dict[str, Any]:
     """Fit and publish one entry; returns a JSON-ready record with ``status`` one of
-    ``published``, ``unchanged``, ``refused`` (by the diagnostics gate) or ``failed``."""
+    ``published``, ``unchanged``, ``refused`` (by the diagnostics gate) or ``failed``.
+
+    ``store_root`` is the store's location (a folder or a URL, as
+    :func:`models.storage.open_store` takes it): a plain string, so the task pickles and each
+    worker opens the store itself.
+    """
     _point_caches(cache_root)
-    from models.store import FileStore
+    from models.storage import open_store
 
     started = time.perf_counter()
-    store = FileStore(store_root)
     record: dict[str, Any] = {"entry": entry.name, "group": entry.group, "worker": _worker_name()}
     try:
+        store = open_store(store_root)
         key = entry_key(entry)
         current = _current_versions(store, entry, key)
         if current is not None:
@@ -95,12 +100,10 @@ def _current_versions(store: Any, entry: PlanEntry, key: str) -> dict[str, str] 
     versions = {}
     for member in entry.members:
         try:
-            version = store.current_version(member.name)
-            manifest = json.loads(
-                (store.root / member.name / "versions" / version / "manifest.json").read_text()
-            )
+            stored = store.load(member.name)  # the current version, verified against its seal
         except (SeriesNotFound, OSError, ValueError, RatecastError):
             return None
+        version, manifest = stored.version, stored.manifest
         if manifest.get("data", {}).get("plan_key") != key:
             return None
         versions[member.name] = version

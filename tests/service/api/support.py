@@ -60,7 +60,7 @@ def publish(
     return store.publish(series, posterior, manifest=manifest or {}).version
 
 
-def settings(store: Path, **overrides: Any) -> Settings:
+def settings(store: str | Path, **overrides: Any) -> Settings:
     """Settings for a test app: no .env file; tokens, CORS and polling off unless given.
 
     Passed explicitly so that ``RATECAST_*`` variables of the shell running the tests do not leak in.

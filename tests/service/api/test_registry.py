@@ -6,10 +6,12 @@ import asyncio
 import logging
 import shutil
 from pathlib import Path
+from typing import Any
 
 import pytest
 
 from models.exceptions import InputError, SeriesNotFound
+from models.storage import open_store
 from models.store import FileStore, MemoryStore
 from service.api.registry import Registry, watch
 from tests.service.api.support import flip_byte, hump_table, publish
@@ -146,10 +148,23 @@ class TestGet:
             registry.get("../etc")
 
 
+@pytest.fixture(params=["folder", "s3"])
+def watched_store(request: pytest.FixtureRequest, tmp_path: Path) -> Any:
+    """A store holding desk-a and desk-b v0001, in a folder or at an s3:// URL (moto)."""
+    if request.param == "folder":
+        return request.getfixturevalue("store")
+    store = open_store(str(request.getfixturevalue("s3_url")))
+    publish(store, "desk-a", hump_table(), draws=5)
+    publish(store, "desk-b", hump_table(0.5), draws=5)
+    return store
+
+
 class TestWatch:
-    def test_polling_picks_up_a_new_version(self, store: FileStore) -> None:
+    def test_polling_picks_up_a_new_version(self, watched_store: Any) -> None:
+        store = watched_store
         registry = Registry(store)
         registry.reload()
+        assert registry.get("desk-b").version == "v0001"
 
         async def scenario() -> str:
             task = asyncio.create_task(watch(registry, 0.02))

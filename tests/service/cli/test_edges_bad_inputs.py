@@ -116,6 +116,9 @@ CASES = [
     case("origin not ISO", "backtest", *HOURLY, "--first-origin", "01/06/2026",
          "--last-origin", "2026-06-02", "--results", "out"),
     case("port 99999", "serve", "--port", "99999"),
+    # ---- store locations (a folder, file:// or s3://)
+    case("store URL of another protocol", "forecast", *WINDOW, "--store", "gs://bucket/store"),
+    case("store file URL on another host", "series", "--store", "file://fileserver/store"),
 ]  # fmt: skip
 
 

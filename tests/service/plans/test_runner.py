@@ -8,6 +8,8 @@ import threading
 import time
 from pathlib import Path
 
+import fsspec
+import pandas as pd
 import pytest
 
 from models.store import FileStore
@@ -143,3 +145,69 @@ def test_a_worker_killed_mid_fit_is_replaced_and_its_series_published(
     assert lost in (None, 1), lost
     assert report.counts()["published"] == 3, report.records  # type: ignore[attr-defined]
     check_store(store)
+
+
+def test_a_plan_on_two_workers_publishes_to_s3_and_ratecast_reads_it_back(
+    tmp_path: Path, s3_url: str, capsys: pytest.CaptureFixture[str]
+) -> None:
+    """Two worker processes fit a small plan whose store is an s3:// URL (moto's server, reached
+    through the AWS_* variables the workers inherit); the CLI then forecasts from that store."""
+    import json
+
+    from models.storage import open_store
+    from service.cli import main
+    from service.plans.tasks import entry_key
+
+    names = {"queen-45": "45 Queen Street", "k-road": "150 K Road"}
+    counts = {}
+    for name, sensor in names.items():
+        counts[name] = daily_counts(sensor)
+        counts[name].to_csv(tmp_path / f"{name}.csv", index=False)  # type: ignore[attr-defined]
+    plan_path = tmp_path / "plan.toml"
+    plan_path.write_text(
+        f'store = "{s3_url}"\n'
+        # Daily bins are labelled in UTC: a forecast of daily bins refuses a zone with DST.
+        '[defaults]\nzone = "UTC"\nbin = "1d"\n'
+        '[defaults.model]\nobservation = "poisson"\ntrend = false\nlatent = false\n'
+        "[defaults.sampling]\ndraws = 500\ntune = 300\nchains = 2\n"
+        + "".join(f'[[series]]\nname = "{n}"\ncounts = "{n}.csv"\n' for n in names)
+    )
+    argv = ["fit-plan", str(plan_path), "--workers", "2", "--cache", str(CACHE)]
+    code = main([*argv, "--json", str(tmp_path / "first.json")])
+    first = json.loads((tmp_path / "first.json").read_text())
+    assert code == 0, first
+    assert first["counts"]["published"] == 2 and first["workers"] == 2, first
+    store = open_store(s3_url)
+    assert store.series() == sorted(names)
+    plan = load_plan(plan_path)
+    for entry in plan.entries:
+        (member,) = entry.members
+        assert store.versions(member.name) == ["v0001"]
+        stored = store.load(member.name)
+        assert stored.sealed and stored.manifest["data"]["plan_key"] == entry_key(entry)
+    # Nothing half-written: every claimed number of every series is a sealed version.
+    fs, root = fsspec.core.url_to_fs(s3_url)
+    keys = {str(k)[len(root) + 1 :] for k in fs.find(root)}
+    claims = {k.split("/")[0] + "/" + k.split("/")[2] for k in keys if "/claims/" in k}
+    seals = {k.split("/")[0] + "/" + k.split("/")[2] for k in keys if k.endswith("/SEAL")}
+    assert claims == seals == {f"{n}/v0001" for n in names}
+
+    # Unchanged inputs: the second run reads each current manifest from S3 and fits nothing.
+    code = main([*argv, "--json", str(tmp_path / "again.json")])
+    again = json.loads((tmp_path / "again.json").read_text())
+    assert code == 0 and again["counts"]["unchanged"] == 2, again
+    capsys.readouterr()
+
+    # ratecast reads the published series from the bucket: one Monday after the history.
+    code = main(
+        ["forecast", "--series", "queen-45", "--store", s3_url, "--start", "2023-05-29",
+         "--end", "2023-05-30", "--format", "json"]
+    )  # fmt: skip
+    out, err = capsys.readouterr()
+    assert code == 0, err
+    doc = json.loads(out)
+    assert doc["model_version"] == "v0001"
+    history = counts["queen-45"]
+    mondays = history[pd.to_datetime(history["start"]).dt.day_of_week == 0]["count"]  # type: ignore[index]
+    # The Monday forecast sits among the Mondays of the history (a wrong store would not).
+    assert 0.5 * mondays.min() < doc["windows"][0]["mean"] < 1.5 * mondays.max(), (doc, mondays)
