@@ -44,7 +44,7 @@ bench: $(STAMP)
 	$(BIN)/python bench/run.py
 
 # Backtests on open real data (seven series of six kinds, day-ahead and 7 days ahead, 2 chains x
-# 500 draws: about 75 minutes of fitting on a 2-core machine), the joint-fit evidence and the
+# 500 draws: about 95 minutes of fitting on a 2-core machine, 4 December), the joint-fit evidence and the
 # intraday-update evidence (about 10 more). Writes docs/evidence.md, docs/evidence/ and the README's
 # evidence table; the joint and intraday scripts print the tables recorded in docs/hierarchy.md and
 # docs/capacity.md.
