@@ -29,7 +29,7 @@ class PublishOutcome:
     version
         The published version.
     retry
-        What the automatic retry changed (``"target_accept 0.9 -> 0.98, tune 1000 -> 2000"``),
+        What the automatic retry changed (``"target_accept 0.95 -> 0.98, tune 1000 -> 2000"``),
         or None when the first attempt passed (or retries were off).
     attempts
         One record per attempt (settings, gate result, problems), first attempt first.

@@ -38,7 +38,7 @@ class TestStrongerSettings:
         options, note = stronger_options(FitOptions(), _diagnostics(divergences=3))
         assert options.target_accept == RETRY_TARGET_ACCEPT
         assert options.tune == 2 * FitOptions().tune
-        assert "target_accept 0.9 -> 0.98" in note
+        assert "target_accept 0.95 -> 0.98" in note
 
     def test_low_ess_alone_gets_more_draws_in_proportion(self) -> None:
         # ESS grows in proportion to the draws of a chain that mixes at a steady rate (common
