@@ -48,10 +48,12 @@ from models.ratemodel.binning import (
 )
 from models.ratemodel.spec import HolidayCalendar, ModelSpec
 from service.defaults import (
+    DEFAULT_HOLIDAY_EFFECTS,
     DEFAULT_LATENT_BY_WEEKDAY,
     DEFAULT_OBSERVATION,
     DEFAULT_UNUSUAL_DAYS,
     resolve_day_choices,
+    resolve_holiday_effects,
     resolve_observation,
 )
 
@@ -97,6 +99,9 @@ class Case:
             within_day=0,
             unusual_days=unusual_days,
             latent_by_weekday=by_weekday,
+            holiday_effects=resolve_holiday_effects(
+                DEFAULT_HOLIDAY_EFFECTS, bin_minutes=self.bin_minutes, joint=False
+            ),
         )
 
 
@@ -167,20 +172,13 @@ def auckland(sensor: str, end: dt.date, weeks: int) -> Callable[[], tuple[Binned
     return load
 
 
-def births(end: dt.date, years: int) -> Callable[[], tuple[BinnedSeries, None]]:
+def daily(loader: str, end: dt.date, years: int) -> Callable[[], tuple[BinnedSeries, None]]:
+    """``years`` of daily counts before ``end`` from the bench/open_data.py loader ``loader``."""
+
     def load() -> tuple[BinnedSeries, None]:
-        from open_data import us_births
+        import open_data
 
-        return us_births(end.replace(year=end.year - years), end), None
-
-    return load
-
-
-def chicago(end: dt.date, years: int) -> Callable[[], tuple[BinnedSeries, None]]:
-    def load() -> tuple[BinnedSeries, None]:
-        from open_data import chicago_trains
-
-        return chicago_trains(end.replace(year=end.year - years), end), None
+        return getattr(open_data, loader)(end.replace(year=end.year - years), end), None
 
     return load
 
@@ -262,18 +260,17 @@ CASES: dict[str, Case] = {
     # latent are both day-level noise and did not mix together, docs/calibration.md).
     "us-births-2y": Case(
         "real: US births, daily, 2 years to 5 Jan 1987, --annual 4 --no-latent",
-        births(dt.date(1987, 1, 5), 2),
+        daily("us_births", dt.date(1987, 1, 5), 2),
         bin_minutes=1440,
         holidays=US,
         annual=4,
         latent=False,
     ),
-    # Daily bins exactly as `ratecast fit` builds them by default (daily latent on, unusual days
-    # left out, weekday and holiday loadings), which the evidence does not fit (it takes Poisson
-    # days for daily series).
+    # Daily bins exactly as `ratecast fit` builds them by default (Poisson days, daily latent
+    # with weekday and holiday loadings, unusual days left out): the evidence's daily model.
     "chicago-2y": Case(
         "real: Chicago Clark/Lake daily entries, 2 years to 2 May 2016, --annual 4, defaults",
-        chicago(dt.date(2016, 5, 2), 2),
+        daily("chicago_trains", dt.date(2016, 5, 2), 2),
         bin_minutes=1440,
         holidays=US,
         annual=4,
