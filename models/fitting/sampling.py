@@ -126,6 +126,7 @@ def sample_model(
                 progressbar=progressbar,
                 target_accept=target_accept,
                 low_rank=low_rank,
+                cores=cores,
             )
         else:
             idata = pm.sample(
@@ -169,6 +170,7 @@ def _sample_nutpie(
     progressbar: bool,
     target_accept: float,
     low_rank: bool,
+    cores: int,
 ) -> az.InferenceData:
     try:
         import nutpie
@@ -182,6 +184,7 @@ def _sample_nutpie(
         draws=draws,
         tune=tune,
         chains=chains,
+        cores=cores,  # threads; a plan worker asks for 1
         seed=seed,
         progress_bar=progressbar,
         target_accept=target_accept,
