@@ -2,21 +2,23 @@
 
 The library's :class:`~models.ratemodel.spec.ModelSpec` keeps its own neutral defaults (Poisson
 counts, every day kept, one latent scale), so specs stored before a default changed read back
-unchanged. Three choices are ``"auto"`` here and resolved from the bin width by
-:func:`resolve_observation` and :func:`resolve_day_choices`: the count law, because daily bins
-with the daily latent sample badly with negative binomial days, and the unusual days and weekday
-loadings, because they were measured to help on daily series and not (yet) on hourly or
-half-hourly ones (docs/evidence.md, "Unusual days and weekday loadings").
+unchanged. Four choices are ``"auto"`` here and resolved from the bin width by
+:func:`resolve_observation`, :func:`resolve_day_choices` and :func:`resolve_holiday_effects`: the
+count law, because daily bins with the daily latent sample badly with negative binomial days, and
+the unusual days, weekday loadings and named holiday effects, because they were measured to help
+on daily series and not (yet) on hourly or half-hourly ones (docs/evidence.md).
 """
 
 from __future__ import annotations
 
 __all__ = [
     "AUTO",
+    "DEFAULT_HOLIDAY_EFFECTS",
     "DEFAULT_LATENT_BY_WEEKDAY",
     "DEFAULT_OBSERVATION",
     "DEFAULT_UNUSUAL_DAYS",
     "resolve_day_choices",
+    "resolve_holiday_effects",
     "resolve_observation",
 ]
 
@@ -34,6 +36,26 @@ DEFAULT_UNUSUAL_DAYS = AUTO
 #: Weekday and holiday loadings on the daily latent deviation: ``auto`` is on for daily series
 #: fitted alone, off otherwise.
 DEFAULT_LATENT_BY_WEEKDAY = AUTO
+#: One effect per named holiday (partially pooled) or one shared by all: ``auto`` is named for
+#: daily series fitted alone, shared otherwise (groups have one effect per series).
+DEFAULT_HOLIDAY_EFFECTS = AUTO
+
+
+def resolve_holiday_effects(holiday_effects: str, *, bin_minutes: int, joint: bool) -> str:
+    """The ``holiday_effects`` a spec gets: ``named`` or ``shared`` as given, or from ``auto``.
+
+    Examples
+    --------
+    >>> resolve_holiday_effects("auto", bin_minutes=1440, joint=False)
+    'named'
+    >>> resolve_holiday_effects("auto", bin_minutes=60, joint=False)
+    'shared'
+    >>> resolve_holiday_effects("auto", bin_minutes=1440, joint=True)
+    'shared'
+    """
+    if holiday_effects != AUTO:
+        return holiday_effects
+    return "named" if bin_minutes == 1440 and not joint else "shared"
 
 
 def resolve_day_choices(

@@ -50,6 +50,7 @@ def compact_from_fit(
     dispersion = take("dispersion", ("slot",)) if spec.observation == "negbin" else None
     if spec.observation == "negbin" and dispersion is None:
         raise CorruptArtefact("the negative binomial fit has no dispersion draws")
+    named = bool(calendar.holiday_names)
     return CompactPosterior(
         week_log_rate=week,
         trend=_or(take("trend", ()), zeros),
@@ -66,6 +67,8 @@ def compact_from_fit(
         within_day=take("within_day", ("day", "within_term")) if spec.within_day else None,
         within_day_sd=take("within_day_sd", ("within_term",)) if spec.within_day else None,
         latent_loading=take("latent_loading", ("day_kind",)) if spec.latent_by_weekday else None,
+        holiday_named=take("holiday_named", ("holiday_name",)) if named else None,
+        holiday_spread=take("holiday_spread", ()) if named else None,
     )
 
 

@@ -11,8 +11,9 @@ import datetime as dt
 import io
 import threading
 import weakref
+import zlib
 from collections import OrderedDict
-from collections.abc import Callable
+from collections.abc import Callable, Hashable
 from dataclasses import dataclass
 from typing import Any
 
@@ -29,9 +30,19 @@ _ARRAYS = ("week_log_rate", "trend", "holiday_effect", "latent", "latent_rho", "
 #: Future days of latent path simulated once per loaded version (queries beyond extend it).
 _CACHED_FUTURE_DAYS = 401
 #: Arrays only some models have; a store written before they existed simply lacks them.
-_OPTIONAL_ARRAYS = ("dispersion", "annual", "within_day", "within_day_sd", "latent_loading")
+_OPTIONAL_ARRAYS = (
+    "dispersion",
+    "annual",
+    "within_day",
+    "within_day_sd",
+    "latent_loading",
+    "holiday_named",
+    "holiday_spread",
+)
 # Keeps the future within-day weights apart from the other seeded streams.
 _WITHIN_STREAM = 0x7368617065
+# Keeps the deviations of holidays the history never held apart from the other streams.
+_HOLIDAY_STREAM = 0x686F6C69
 
 
 @dataclass(frozen=True)
@@ -67,6 +78,11 @@ class CompactPosterior:
         (``spec.latent_by_weekday``), or None: every day 1. ``latent`` already holds the
         loaded deviation of each history day; future days are the loading of their weekday times
         the AR(1) state carried forward.
+    holiday_named, holiday_spread
+        ``(draw, holiday_name)`` each named holiday's deviation from ``holiday_effect`` (the
+        names in ``calendar.holiday_names``) and ``(draw,)`` their sd, or None (one shared
+        effect). A holiday the history did not hold draws its deviation from Normal(0, spread)
+        with a generator seeded by :attr:`seed` and its name (:meth:`holiday_deviations`).
     """
 
     week_log_rate: np.ndarray
@@ -84,6 +100,8 @@ class CompactPosterior:
     within_day: np.ndarray | None = None
     within_day_sd: np.ndarray | None = None
     latent_loading: np.ndarray | None = None
+    holiday_named: np.ndarray | None = None
+    holiday_spread: np.ndarray | None = None
 
     @property
     def n_draws(self) -> int:
@@ -170,6 +188,28 @@ class CompactPosterior:
             "week_by_cell",
             lambda: np.ascontiguousarray(np.moveaxis(self.as_float64["week_log_rate"], 0, -1)),
         )
+
+    def holiday_deviations(self, names: tuple[str, ...]) -> np.ndarray | None:
+        """``(len(names), draw)`` float64 deviation of each named holiday from the common
+        holiday effect, or None for a posterior with one shared effect (kept per version and
+        names)."""
+        if self.holiday_named is None or self.holiday_spread is None:
+            return None
+
+        def build() -> np.ndarray:
+            fitted = {name: i for i, name in enumerate(self.calendar.holiday_names)}
+            named = np.asarray(self.holiday_named, dtype=np.float64)
+            spread = np.asarray(self.holiday_spread, dtype=np.float64)
+            rows = []
+            for name in names:
+                if name in fitted:
+                    rows.append(named[:, fitted[name]])
+                else:  # never in the history: a new member of the holidays' population
+                    key = [self.seed, _HOLIDAY_STREAM, zlib.crc32(name.encode())]
+                    rows.append(spread * np.random.default_rng(key).standard_normal(len(spread)))
+            return np.array(rows).reshape(len(names), self.n_draws)
+
+        return _cached(self, ("holidays", names), build)  # type: ignore[no-any-return]
 
     @property
     def bin_table(self) -> BinTable:
@@ -270,6 +310,8 @@ class CompactPosterior:
             "within_day": ((d, self.n_days, self.spec.within_day), self.spec.within_day),
             "within_day_sd": ((d, self.spec.within_day), self.spec.within_day),
             "latent_loading": ((d, 8), self.spec.latent_by_weekday),
+            "holiday_named": ((d, len(self.calendar.holiday_names)), self.calendar.holiday_names),
+            "holiday_spread": ((d,), self.calendar.holiday_names),
         }
         for name, (shape, wanted) in terms.items():
             value = getattr(self, name)
@@ -288,11 +330,11 @@ class CompactPosterior:
 #: A server with many series queries a few at a time, so a bounded cache keeps memory flat
 #: (measured: unbounded, a batch over 1,000 series grew the server by 1.9 GB).
 CACHED_VERSIONS = 32
-_cache: OrderedDict[int, dict[str, Any]] = OrderedDict()
+_cache: OrderedDict[int, dict[Hashable, Any]] = OrderedDict()
 _cache_lock = threading.Lock()
 
 
-def _cached(posterior: CompactPosterior, key: str, build: Callable[[], Any]) -> Any:
+def _cached(posterior: CompactPosterior, key: Hashable, build: Callable[[], Any]) -> Any:
     """``build()`` once per posterior and key, for the most recently used posteriors only."""
     ident = id(posterior)
     with _cache_lock:
@@ -333,6 +375,8 @@ class BinTable:
     minute: np.ndarray | None = None
     opening: OpeningHours | None = None
     bin_minutes: int = 60
+    holiday_index: np.ndarray | None = None
+    holiday_names: tuple[str, ...] = ()
 
     @classmethod
     def build(
@@ -360,6 +404,8 @@ class BinTable:
             minute=feats.minute,
             opening=None if opening is None or opening.always_open else opening,
             bin_minutes=calendar.bin_minutes,
+            holiday_index=feats.holiday_index,
+            holiday_names=feats.holiday_names,
         )
 
     def open_share_before(self, bins: np.ndarray, points: np.ndarray) -> np.ndarray:

@@ -319,6 +319,10 @@ def _integrate_cluster(
     trend = draws["trend"][None, :]
     holiday_effect = draws["holiday_effect"][None, :]
     holiday_finite = bool(np.isfinite(holiday_effect).all())
+    named = posterior.holiday_deviations(table.holiday_names)
+    holiday_index = None
+    if named is not None and table.holiday_index is not None:
+        holiday_index = table.holiday_index[span]
     spec = posterior.spec
     phase = table.phase[span]
     if spec.annual_harmonics:
@@ -334,6 +338,9 @@ def _integrate_cluster(
         log_rate += years[block, None] * trend
         if not holiday_finite or holiday[block].any():
             log_rate += holiday[block, None] * holiday_effect
+            if named is not None and holiday_index is not None:
+                on = np.flatnonzero(holiday_index[block] >= 0)
+                log_rate[on] += named[holiday_index[block][on]]
         log_rate += latent[day[block]]
         if spec.annual_harmonics:
             log_rate += annual_basis(phase[block], spec.annual_harmonics) @ draws_annual

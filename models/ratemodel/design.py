@@ -7,7 +7,7 @@ a history bin was.
 from __future__ import annotations
 
 import datetime as dt
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -49,7 +49,9 @@ def slot_labels(bin_minutes: int) -> list[str]:
 @dataclass(frozen=True)
 class BinFeatures:
     """Model coordinates of a set of bins (all arrays have one entry per bin; ``phase`` is the
-    phase in the year of :func:`models.ratemodel.bases.year_phase`)."""
+    phase in the year of :func:`models.ratemodel.bases.year_phase`). ``holiday_names`` are the
+    names of the holidays among these bins, sorted, and ``holiday_index`` each bin's position
+    in them (-1 on other days)."""
 
     dow: np.ndarray
     slot: np.ndarray
@@ -59,6 +61,8 @@ class BinFeatures:
     holiday: np.ndarray
     date: np.ndarray
     phase: np.ndarray
+    holiday_index: np.ndarray
+    holiday_names: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -75,6 +79,9 @@ class Calendar:
         Local date where the trend term is zero (middle of the history).
     holidays
         Holiday calendar, or None.
+    holiday_names
+        The named holidays the history holds (their effects were fitted, in this order), or
+        empty: shared holiday effects, or none in the history.
     """
 
     tz: str
@@ -82,6 +89,7 @@ class Calendar:
     first_day: dt.date
     trend_origin: dt.date
     holidays: HolidayCalendar | None = None
+    holiday_names: tuple[str, ...] = ()
 
     def features(self, starts: pd.DatetimeIndex) -> BinFeatures:
         """Coordinates of bins starting at ``starts`` (UTC instants)."""
@@ -89,13 +97,19 @@ class Calendar:
         first = np.datetime64(self.first_day, "D")
         day = (date - first).astype(np.int64)
         years = (date - np.datetime64(self.trend_origin, "D")).astype(float) / DAYS_PER_YEAR
-        holiday = np.zeros(len(date), dtype=float)
+        index = np.full(len(date), -1, dtype=np.int64)
+        names: tuple[str, ...] = ()
         if self.holidays is not None and len(date):
-            unique = np.unique(date)
-            flags = self.holidays.is_holiday([d.astype(dt.date) for d in unique])
-            marked = unique[np.asarray(flags, dtype=bool)]
-            holiday = np.isin(date, marked).astype(float)
-        return BinFeatures(dow, slot, day, minute, years, holiday, date, year_phase(date))
+            unique, first_bin = np.unique(date, return_inverse=True)
+            named = self.holidays.names([d.astype(dt.date) for d in unique])
+            names = tuple(sorted({n for n in named if n is not None}))
+            position = {name: i for i, name in enumerate(names)}
+            per_day = np.array([-1 if n is None else position[n] for n in named], dtype=np.int64)
+            index = per_day[first_bin]
+        holiday = (index >= 0).astype(float)
+        return BinFeatures(
+            dow, slot, day, minute, years, holiday, date, year_phase(date), index, names
+        )
 
     def day_kinds(self, days: np.ndarray) -> np.ndarray:
         """Index into :data:`DAY_KINDS` of each day index ``days`` (0 = :attr:`first_day`):
@@ -110,12 +124,15 @@ class Calendar:
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready form (the holiday calendar lives in the spec)."""
-        return {
+        out: dict[str, Any] = {
             "tz": self.tz,
             "bin_minutes": self.bin_minutes,
             "first_day": self.first_day.isoformat(),
             "trend_origin": self.trend_origin.isoformat(),
         }
+        if self.holiday_names:
+            out["holiday_names"] = list(self.holiday_names)
+        return out
 
     @classmethod
     def from_dict(cls, data: dict[str, Any], *, holidays: HolidayCalendar | None) -> Calendar:
@@ -126,6 +143,7 @@ class Calendar:
             first_day=dt.date.fromisoformat(data["first_day"]),
             trend_origin=dt.date.fromisoformat(data["trend_origin"]),
             holidays=holidays,
+            holiday_names=tuple(data.get("holiday_names", ())),
         )
 
 
@@ -184,6 +202,11 @@ def make_model_data(binned: BinnedSeries, spec: ModelSpec) -> ModelData:
         holidays=spec.holidays,
     )
     features = calendar.features(binned.start)
+    if spec.holidays is not None and spec.holiday_effects == "named":
+        # The holidays the history observes; each gets its own (partially pooled) effect.
+        index = features.holiday_index
+        seen = np.unique(index[(index >= 0) & (binned.exposure > 0)])
+        calendar = replace(calendar, holiday_names=tuple(features.holiday_names[i] for i in seen))
     coords = {
         "dow": list(DAY_NAMES),
         "slot": slot_labels(binned.bin_minutes),
@@ -191,6 +214,8 @@ def make_model_data(binned: BinnedSeries, spec: ModelSpec) -> ModelData:
     }
     if spec.latent_by_weekday:
         coords["day_kind"] = list(DAY_KINDS)
+    if calendar.holiday_names:
+        coords["holiday_name"] = list(calendar.holiday_names)
     if spec.annual_harmonics:
         coords["annual_term"] = [
             f"{kind}{k}" for k in range(1, spec.annual_harmonics + 1) for kind in ("sin", "cos")

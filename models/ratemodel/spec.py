@@ -27,6 +27,7 @@ from models.exceptions import InputError
 
 __all__ = [
     "BIN_MINUTES",
+    "HOLIDAY_EFFECTS",
     "MAX_ANNUAL_HARMONICS",
     "MAX_WITHIN_DAY",
     "OBSERVATIONS",
@@ -49,6 +50,12 @@ MAX_WITHIN_DAY = 8
 #: What a fit does with the history's unusual days (:mod:`models.ratemodel.screening`): ``keep``
 #: fits them like any other day, ``leave-out`` treats them as missing.
 UNUSUAL_DAYS: tuple[str, ...] = ("keep", "leave-out")
+#: How holidays move the rate: ``shared``, one effect for every holiday of the calendar, or
+#: ``named``, one effect per named holiday (Memorial Day, Christmas Day, ...) partially pooled
+#: toward their common mean; a holiday the history never saw gets a draw from that population.
+HOLIDAY_EFFECTS: tuple[str, ...] = ("shared", "named")
+#: The name the days listed by hand (``HolidayCalendar.extra``) share.
+LISTED_DAY = "listed day"
 
 
 @dataclass(frozen=True)
@@ -68,7 +75,9 @@ class Priors:
     trend_sigma
         Sd of the trend slope, in log-rate per year.
     holiday_sigma
-        Sd of the holiday effect on the log rate.
+        Sd of the holiday effect on the log rate (with named effects: of their common mean).
+    holiday_spread_scale
+        Named holiday effects: half-normal prior scale of their sd around the common mean.
     latent_scale
         Half-normal prior scale of the daily latent deviation's innovation sd.
     annual_sigma
@@ -90,6 +99,7 @@ class Priors:
     interaction_scale: float = 0.25
     trend_sigma: float = 0.5
     holiday_sigma: float = 1.0
+    holiday_spread_scale: float = 0.5
     latent_scale: float = 0.2
     annual_sigma: float = 0.1
     within_day_scale: float = 0.2
@@ -153,6 +163,32 @@ class HolidayCalendar:
         known = self.dates(range(min(days).year, max(days).year + 1))
         return [d in known for d in days]
 
+    def names(self, days: list[dt.date]) -> list[str | None]:
+        """The holiday's name on each day, None on other days.
+
+        The ``holidays`` package's name, the first one where two fall on a day; an observed
+        day keeps its own name ("Independence Day (observed)" moves a Friday, the day itself a
+        Saturday); the listed extra dates share the name ``"listed day"``.
+
+        Examples
+        --------
+        >>> import datetime as dt
+        >>> cal = HolidayCalendar(country="US", extra=(dt.date(2015, 12, 24),))
+        >>> cal.names([dt.date(2015, 5, 25), dt.date(2015, 12, 24), dt.date(2015, 12, 23)])
+        ['Memorial Day', 'listed day', None]
+        """
+        if not days:
+            return []
+        years = list(range(min(days).year, max(days).year + 1))
+        named: dict[dt.date, str] = {}
+        if self.country is not None:
+            import holidays
+
+            found = holidays.country_holidays(self.country, subdiv=self.subdivision, years=years)
+            named = {d: str(name).split("; ")[0] for d, name in found.items()}
+        extra = set(self.extra)
+        return [named.get(d, LISTED_DAY if d in extra else None) for d in days]
+
 
 @dataclass(frozen=True)
 class ModelSpec:
@@ -188,6 +224,9 @@ class ModelSpec:
     loadings summing to zero): weekdays whose level moves little from day to day get narrow
     intervals even when other weekdays, or holidays, move a lot.
 
+    ``holiday_effects`` (:data:`HOLIDAY_EFFECTS`) is ``"shared"`` (one effect for all the
+    calendar's holidays) or ``"named"`` (an effect per named holiday, partially pooled).
+
     Examples
     --------
     >>> spec = ModelSpec(bin_minutes=30, trend=False)
@@ -213,6 +252,7 @@ class ModelSpec:
     within_day: int = 0
     unusual_days: str = "keep"
     latent_by_weekday: bool = False
+    holiday_effects: str = "shared"
 
     def __post_init__(self) -> None:
         if self.bin_minutes not in BIN_MINUTES:
@@ -229,6 +269,11 @@ class ModelSpec:
             )
         if self.latent_by_weekday and self.centred_latent:
             raise InputError("latent_by_weekday is built on the non-centred latent path only")
+        if self.holiday_effects not in HOLIDAY_EFFECTS:
+            raise InputError(
+                f"holiday_effects {self.holiday_effects!r} is not one of "
+                f"{', '.join(HOLIDAY_EFFECTS)}"
+            )
         if self.unusual_days not in UNUSUAL_DAYS:
             raise InputError(
                 f"unusual_days {self.unusual_days!r} is not one of {', '.join(UNUSUAL_DAYS)}"
@@ -288,6 +333,10 @@ class ModelSpec:
             del out["unusual_days"]
         if not self.latent_by_weekday:
             del out["latent_by_weekday"]
+        if self.holiday_effects == "shared":
+            del out["holiday_effects"]
+        if self.priors.holiday_spread_scale == Priors.holiday_spread_scale:
+            del out["priors"]["holiday_spread_scale"]
         if self.holidays is not None:
             out["holidays"]["extra"] = [d.isoformat() for d in self.holidays.extra]
         gamma = self.priors.baseline_gamma

@@ -20,10 +20,12 @@ from zoneinfo import ZoneInfo
 from models.exceptions import DegradedVersion, InputError, StoreError
 from models.fitting.options import FitOptions
 from service.defaults import (
+    DEFAULT_HOLIDAY_EFFECTS,
     DEFAULT_LATENT_BY_WEEKDAY,
     DEFAULT_OBSERVATION,
     DEFAULT_UNUSUAL_DAYS,
     resolve_day_choices,
+    resolve_holiday_effects,
     resolve_observation,
 )
 from service.history import (
@@ -110,6 +112,14 @@ def add_model_options(p: argparse.ArgumentParser) -> None:
         "steady weekdays get narrow intervals when weekends or holidays swing: on, off, or auto "
         "(default: on for daily bins, off for finer bins)",
     )
+    p.add_argument(
+        "--holiday-effects",
+        choices=("auto", "named", "shared"),
+        default=DEFAULT_HOLIDAY_EFFECTS,
+        help="named: each named holiday (Memorial Day, Christmas Day, ...) its own effect, "
+        "partially pooled; shared: one effect for all holidays; auto (default: named for daily "
+        "bins, shared for finer bins and groups)",
+    )
 
 
 def model_spec(
@@ -137,6 +147,9 @@ def model_spec(
         within_day=args.within_day,
         unusual_days=unusual_days,
         latent_by_weekday=by_weekday,
+        holiday_effects=resolve_holiday_effects(
+            args.holiday_effects, bin_minutes=bin_minutes, joint=joint
+        ),
     )
 
 

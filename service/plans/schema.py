@@ -21,6 +21,7 @@ is fitted, and every bad entry is reported with its name and field. Example::
     within_day = 0
     unusual_days = "auto"                  # "leave-out", "keep"; auto: leave-out for 1d bins
     latent_by_weekday = "auto"             # "on", "off"; auto: on for 1d bins (single series)
+    holiday_effects = "auto"               # "named", "shared"; auto: named for 1d bins (single)
 
     [defaults.sampling]                    # as the sampling options of ratecast fit
     draws = 1000
@@ -60,6 +61,7 @@ from models.exceptions import InputError, RatecastError
 from models.fitting.options import FitOptions
 from models.ratemodel.binning import OpeningHours, check_zone, parse_bin_width
 from models.ratemodel.spec import (
+    HOLIDAY_EFFECTS,
     MAX_ANNUAL_HARMONICS,
     MAX_WITHIN_DAY,
     OBSERVATIONS,
@@ -68,6 +70,7 @@ from models.ratemodel.spec import (
 from models.store import check_series_name
 from service.defaults import (
     AUTO,
+    DEFAULT_HOLIDAY_EFFECTS,
     DEFAULT_LATENT_BY_WEEKDAY,
     DEFAULT_OBSERVATION,
     DEFAULT_UNUSUAL_DAYS,
@@ -85,6 +88,7 @@ _MODEL_KEYS = {
     "within_day": int,
     "unusual_days": str,
     "latent_by_weekday": str,
+    "holiday_effects": str,
 }
 _SAMPLING_KEYS = {
     "draws": int,
@@ -294,6 +298,7 @@ def _entry(
             "observation": DEFAULT_OBSERVATION,
             "unusual_days": DEFAULT_UNUSUAL_DAYS,
             "latent_by_weekday": DEFAULT_LATENT_BY_WEEKDAY,
+            "holiday_effects": DEFAULT_HOLIDAY_EFFECTS,
             **model,
         },
         sampling=sampling,
@@ -421,6 +426,16 @@ def _check_model(model: dict[str, Any], label: str, *, joint: bool) -> list[str]
         problems.append(
             f"{label}: model: latent_by_weekday {model['latent_by_weekday']!r} is not one of "
             "auto, on, off"
+        )
+    if model.get("holiday_effects", DEFAULT_HOLIDAY_EFFECTS) not in (AUTO, *HOLIDAY_EFFECTS):
+        problems.append(
+            f"{label}: model: holiday_effects {model['holiday_effects']!r} is not one of "
+            f"{', '.join((AUTO, *HOLIDAY_EFFECTS))}"
+        )
+    if joint and model.get("holiday_effects") == "named":
+        problems.append(
+            f"{label}: model: holiday_effects 'named' is not available for groups; use auto or "
+            "shared"
         )
     if joint and model.get("latent_by_weekday") == "on":
         problems.append(

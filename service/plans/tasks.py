@@ -129,9 +129,11 @@ def _history(entry: PlanEntry, member: Member, opening: Any) -> Any:
 def _spec(entry: PlanEntry, bin_minutes: int) -> Any:
     from models.ratemodel.spec import ModelSpec
     from service.defaults import (
+        DEFAULT_HOLIDAY_EFFECTS,
         DEFAULT_LATENT_BY_WEEKDAY,
         DEFAULT_UNUSUAL_DAYS,
         resolve_day_choices,
+        resolve_holiday_effects,
         resolve_observation,
     )
     from service.history import holiday_calendar
@@ -157,6 +159,11 @@ def _spec(entry: PlanEntry, bin_minutes: int) -> Any:
         within_day=model.get("within_day", 0),
         unusual_days=unusual_days,
         latent_by_weekday=by_weekday,
+        holiday_effects=resolve_holiday_effects(
+            model.get("holiday_effects", DEFAULT_HOLIDAY_EFFECTS),
+            bin_minutes=bin_minutes,
+            joint=entry.group,
+        ),
     )
 
 

@@ -64,3 +64,12 @@ def test_the_fit_names_the_days_it_left_out(capsys) -> None:
     assert out.startswith("left out 14 unusual day(s) of history")
     assert "2025-01-01, 2025-01-08" in out and "and 2 more" in out
     assert "2025-03-26" not in out and "--unusual-days keep" in out
+
+
+def test_daily_series_get_an_effect_per_named_holiday_by_default() -> None:
+    assert spec_of(bin_minutes=1440).holiday_effects == "named"
+    assert spec_of().holiday_effects == "shared"
+    # A group has one holiday effect per series.
+    assert spec_of(bin_minutes=1440, joint=True).holiday_effects == "shared"
+    assert spec_of("--holiday-effects", "shared", bin_minutes=1440).holiday_effects == "shared"
+    assert spec_of("--holiday-effects", "named").holiday_effects == "named"

@@ -8,7 +8,12 @@ from pathlib import Path
 
 import pytest
 
-from service.defaults import DEFAULT_LATENT_BY_WEEKDAY, DEFAULT_OBSERVATION, DEFAULT_UNUSUAL_DAYS
+from service.defaults import (
+    DEFAULT_HOLIDAY_EFFECTS,
+    DEFAULT_LATENT_BY_WEEKDAY,
+    DEFAULT_OBSERVATION,
+    DEFAULT_UNUSUAL_DAYS,
+)
 from service.plans.schema import PlanError, load_plan, parse_plan
 
 
@@ -63,6 +68,7 @@ retry = false
                 "observation": DEFAULT_OBSERVATION,
                 "unusual_days": DEFAULT_UNUSUAL_DAYS,
                 "latent_by_weekday": DEFAULT_LATENT_BY_WEEKDAY,
+                "holiday_effects": DEFAULT_HOLIDAY_EFFECTS,
                 "trend": False,
             }
         )
@@ -153,6 +159,27 @@ members = [{ name = "queue-a", counts = "a.csv" }]
         ]
         for fragment in expected:
             assert any(p.startswith(fragment) for p in problems), (fragment, problems)
+
+    def test_holiday_effects_are_checked_and_groups_cannot_name_them(self, inputs: Path) -> None:
+        text = """
+[defaults]
+zone = "UTC"
+[[series]]
+name = "desk-a"
+counts = "a.csv"
+model = { holiday_effects = "each" }
+[[group]]
+name = "pair"
+members = [{ name = "queue-a", counts = "a.csv" }, { name = "queue-b", counts = "b.csv" }]
+model = { holiday_effects = "named" }
+"""
+        with pytest.raises(PlanError) as caught:
+            parse_plan(text, path=inputs / "plan.toml")
+        assert caught.value.problems == [
+            "series 'desk-a': model: holiday_effects 'each' is not one of auto, shared, named",
+            "group 'pair': model: holiday_effects 'named' is not available for groups; use auto "
+            "or shared",
+        ]
 
     def test_a_series_in_two_entries_is_refused(self, inputs: Path) -> None:
         text = """
