@@ -127,8 +127,8 @@ HOURLY = ModelSpec(observation="negbin", trend=False, holidays=NZ)
 #: bins and mix poorly together; the daily latent (persistence from day to day) is kept with
 #: Poisson days, a trend and an annual season. (The numba backend once raised on these; the AR(1)
 #: path now keeps rho inside (0, 1), and the C backend took 50-200 s a fit against ~30 s.)
-#: As ``ratecast fit`` does for daily bins by default (service/defaults.py): unusual days left out
-#: and the latent loaded per weekday and on holidays.
+#: As ``ratecast fit`` does for daily bins by default (service/defaults.py): unusual days left out,
+#: the latent loaded per weekday and on holidays, and an effect per named holiday.
 DAILY = ModelSpec(
     bin_minutes=1440,
     observation="poisson",
@@ -136,6 +136,7 @@ DAILY = ModelSpec(
     annual_harmonics=4,
     unusual_days="leave-out",
     latent_by_weekday=True,
+    holiday_effects="named",
 )
 
 
@@ -283,7 +284,8 @@ def describe(spec: ModelSpec) -> str:
     terms = ["day of week"]
     if spec.has_time_of_day:
         terms += ["time of day", "their interaction"]
-    terms += ["holidays"] if spec.holidays is not None else []
+    if spec.holidays is not None:
+        terms += ["an effect per named holiday" if spec.holiday_effects == "named" else "holidays"]
     terms += ["trend"] if spec.trend else []
     terms += [f"annual season ({spec.annual_harmonics} Fourier pairs)"] * bool(
         spec.annual_harmonics
@@ -542,8 +544,16 @@ def main(argv: list[str] | None = None) -> int:
         default=None,
         help="a variant: every series' model with weekday loadings on the daily latent on or off",
     )
+    parser.add_argument(
+        "--holiday-effects",
+        choices=("named", "shared"),
+        default=None,
+        help="a variant: every series' model with named or shared holiday effects",
+    )
     args = parser.parse_args(argv)
     changes: dict[str, Any] = {}
+    if args.holiday_effects is not None:
+        changes["holiday_effects"] = args.holiday_effects
     if args.unusual_days is not None:
         changes["unusual_days"] = args.unusual_days
     if args.latent_by_weekday is not None:
