@@ -47,15 +47,7 @@ from models.ratemodel.binning import (
     local_features,
 )
 from models.ratemodel.spec import HolidayCalendar, ModelSpec
-from service.defaults import (
-    DEFAULT_HOLIDAY_EFFECTS,
-    DEFAULT_LATENT_BY_WEEKDAY,
-    DEFAULT_OBSERVATION,
-    DEFAULT_UNUSUAL_DAYS,
-    resolve_day_choices,
-    resolve_holiday_effects,
-    resolve_observation,
-)
+from service.defaults import resolved_choices
 
 ROOT = Path(__file__).resolve().parent.parent
 RESULTS = ROOT / ".battery"
@@ -80,28 +72,14 @@ class Case:
     def spec(self) -> ModelSpec:
         """What ``ratecast fit`` builds by default for this series (``model_spec`` with the
         default options, plus the holidays / ``--annual`` a user of this data would pass)."""
-        unusual_days, by_weekday = resolve_day_choices(
-            DEFAULT_UNUSUAL_DAYS,
-            DEFAULT_LATENT_BY_WEEKDAY,
-            bin_minutes=self.bin_minutes,
-            latent=self.latent,
-            joint=False,
-        )
         return ModelSpec(
             bin_minutes=self.bin_minutes,
             trend=True,
             latent_daily=self.latent,
             holidays=self.holidays,
-            observation=resolve_observation(
-                DEFAULT_OBSERVATION, bin_minutes=self.bin_minutes, latent=self.latent
-            ),
             annual_harmonics=self.annual,
             within_day=0,
-            unusual_days=unusual_days,
-            latent_by_weekday=by_weekday,
-            holiday_effects=resolve_holiday_effects(
-                DEFAULT_HOLIDAY_EFFECTS, bin_minutes=self.bin_minutes, joint=False
-            ),
+            **resolved_choices(bin_minutes=self.bin_minutes, latent=self.latent, joint=False),
         )
 
 

@@ -11,6 +11,8 @@ on daily series and not (yet) on hourly or half-hourly ones (docs/evidence.md).
 
 from __future__ import annotations
 
+from typing import Any
+
 __all__ = [
     "AUTO",
     "DEFAULT_HOLIDAY_EFFECTS",
@@ -20,6 +22,7 @@ __all__ = [
     "resolve_day_choices",
     "resolve_holiday_effects",
     "resolve_observation",
+    "resolved_choices",
 ]
 
 AUTO = "auto"
@@ -104,3 +107,35 @@ def resolve_observation(observation: str, *, bin_minutes: int, latent: bool) -> 
     if observation != AUTO:
         return observation
     return "poisson" if bin_minutes == 1440 and latent else "negbin"
+
+
+def resolved_choices(
+    *,
+    bin_minutes: int,
+    latent: bool,
+    joint: bool,
+    observation: str = DEFAULT_OBSERVATION,
+    unusual_days: str = DEFAULT_UNUSUAL_DAYS,
+    latent_by_weekday: str = DEFAULT_LATENT_BY_WEEKDAY,
+    holiday_effects: str = DEFAULT_HOLIDAY_EFFECTS,
+) -> dict[str, Any]:
+    """The :class:`~models.ratemodel.spec.ModelSpec` fields the four choices give (each as given,
+    or resolved from ``auto``), as keyword arguments: what ``ratecast fit``, fit plans and the
+    battery build alike.
+
+    Examples
+    --------
+    >>> resolved_choices(bin_minutes=1440, latent=True, joint=False)["holiday_effects"]
+    'named'
+    """
+    days, by_weekday = resolve_day_choices(
+        unusual_days, latent_by_weekday, bin_minutes=bin_minutes, latent=latent, joint=joint
+    )
+    return {
+        "observation": resolve_observation(observation, bin_minutes=bin_minutes, latent=latent),
+        "unusual_days": days,
+        "latent_by_weekday": by_weekday,
+        "holiday_effects": resolve_holiday_effects(
+            holiday_effects, bin_minutes=bin_minutes, joint=joint
+        ),
+    }

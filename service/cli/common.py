@@ -24,9 +24,7 @@ from service.defaults import (
     DEFAULT_LATENT_BY_WEEKDAY,
     DEFAULT_OBSERVATION,
     DEFAULT_UNUSUAL_DAYS,
-    resolve_day_choices,
-    resolve_holiday_effects,
-    resolve_observation,
+    resolved_choices,
 )
 from service.history import (
     holiday_calendar,
@@ -128,27 +126,21 @@ def model_spec(
     """The :class:`~models.ratemodel.spec.ModelSpec` the options of :func:`add_model_options` describe."""
     from models.ratemodel.spec import ModelSpec
 
-    unusual_days, by_weekday = resolve_day_choices(
-        args.unusual_days,
-        args.latent_by_weekday,
-        bin_minutes=bin_minutes,
-        latent=not args.no_latent,
-        joint=joint,
-    )
     return ModelSpec(
         bin_minutes=bin_minutes,
         trend=not args.no_trend,
         latent_daily=not args.no_latent,
         holidays=holidays,
-        observation=resolve_observation(
-            args.observation, bin_minutes=bin_minutes, latent=not args.no_latent
-        ),
         annual_harmonics=args.annual,
         within_day=args.within_day,
-        unusual_days=unusual_days,
-        latent_by_weekday=by_weekday,
-        holiday_effects=resolve_holiday_effects(
-            args.holiday_effects, bin_minutes=bin_minutes, joint=joint
+        **resolved_choices(
+            bin_minutes=bin_minutes,
+            latent=not args.no_latent,
+            joint=joint,
+            observation=args.observation,
+            unusual_days=args.unusual_days,
+            latent_by_weekday=args.latent_by_weekday,
+            holiday_effects=args.holiday_effects,
         ),
     )
 

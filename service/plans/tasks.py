@@ -128,41 +128,25 @@ def _history(entry: PlanEntry, member: Member, opening: Any) -> Any:
 
 def _spec(entry: PlanEntry, bin_minutes: int) -> Any:
     from models.ratemodel.spec import ModelSpec
-    from service.defaults import (
-        DEFAULT_HOLIDAY_EFFECTS,
-        DEFAULT_LATENT_BY_WEEKDAY,
-        DEFAULT_UNUSUAL_DAYS,
-        resolve_day_choices,
-        resolve_holiday_effects,
-        resolve_observation,
-    )
+    from service.defaults import resolved_choices
     from service.history import holiday_calendar
 
     model = entry.model
     latent = model.get("latent", True)
-    unusual_days, by_weekday = resolve_day_choices(
-        model.get("unusual_days", DEFAULT_UNUSUAL_DAYS),
-        model.get("latent_by_weekday", DEFAULT_LATENT_BY_WEEKDAY),
-        bin_minutes=bin_minutes,
-        latent=latent,
-        joint=entry.group,
-    )
+    # The plan's model table keeps the four choices by their spec names ("auto" when unset).
+    choices = ("observation", "unusual_days", "latent_by_weekday", "holiday_effects")
     return ModelSpec(
         bin_minutes=bin_minutes,
         trend=model.get("trend", True),
         latent_daily=latent,
         holidays=holiday_calendar(entry.holidays, ",".join(entry.special_days) or None),
-        observation=resolve_observation(
-            model["observation"], bin_minutes=bin_minutes, latent=latent
-        ),
         annual_harmonics=model.get("annual", 0),
         within_day=model.get("within_day", 0),
-        unusual_days=unusual_days,
-        latent_by_weekday=by_weekday,
-        holiday_effects=resolve_holiday_effects(
-            model.get("holiday_effects", DEFAULT_HOLIDAY_EFFECTS),
+        **resolved_choices(
             bin_minutes=bin_minutes,
+            latent=latent,
             joint=entry.group,
+            **{name: model[name] for name in choices if name in model},
         ),
     )
 
